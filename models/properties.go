@@ -204,7 +204,7 @@ func (n *Network) CycleBasis() []Cycle {
 		for j := len(down) - 1; j >= 0; j-- {
 			c.Steps = append(c.Steps, down[j])
 			if j > 0 {
-				c.States = append(c.States, downStates[j-1])
+				c.States = append(c.States, downStates[j])
 			}
 		}
 		// The lca equals From when From is an ancestor of To: drop the repeat.

@@ -1,0 +1,52 @@
+// Command edgewise fits hidden-state kinetic networks to records of visible
+// transitions. Only this package prints or reads flags.
+package main
+
+import (
+	"fmt"
+	"io"
+	"os"
+)
+
+// version is the tool version stamped on every output.
+const version = "0.1.0-dev"
+
+func main() {
+	os.Exit(run(os.Args[1:], os.Stdout, os.Stderr))
+}
+
+// run executes one command line and returns the exit code: 0 ok, 1 failure,
+// 2 usage error.
+func run(args []string, stdout, stderr io.Writer) int {
+	if len(args) == 0 {
+		usage(stderr)
+		return 2
+	}
+	switch args[0] {
+	case "version", "--version":
+		fmt.Fprintf(stdout, "edgewise %s\n", version)
+		return 0
+	case "help", "-h", "--help":
+		usage(stdout)
+		return 0
+	default:
+		fmt.Fprintf(stderr, "edgewise: unknown command %q\n", args[0])
+		usage(stderr)
+		return 2
+	}
+}
+
+func usage(w io.Writer) {
+	fmt.Fprint(w, `edgewise: kinetic networks seen through a few visible transitions
+
+Usage:
+  edgewise COMMAND [options]
+
+Commands:
+  version   print the tool version
+  help      show this help
+
+Example:
+  edgewise version
+`)
+}
