@@ -1,0 +1,77 @@
+package models
+
+import (
+	"math"
+	"os"
+	"strings"
+	"testing"
+)
+
+func TestParseRing3(t *testing.T) {
+	f, err := os.Open("../testdata/ring3.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	m, err := Parse(f, "ring3.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(m.Free()) != 5 || len(m.Labels) != 2 {
+		t.Fatalf("free %v labels %v", m.Free(), m.Labels)
+	}
+	net, err := m.Network(m.Start())
+	if err != nil {
+		t.Fatal(err)
+	}
+	a := net.Affinity(net.CycleBasis()[0])
+	want := math.Log(3.0 * 2.0 * 1.5 / (0.5 * 0.4 * 0.6))
+	if math.Abs(math.Abs(a)-want) > 1e-12 {
+		t.Fatalf("affinity %g want %g", a, want)
+	}
+}
+
+// TestParseErrors: each problem is reported with its file, line and key.
+func TestParseErrors(t *testing.T) {
+	cases := []struct{ src, want string }{
+		{"states=[\"A\",\"B\"]\n[[edge]]\nbetween=[\"A\",\"Z\"]\nrates=[\"k\",\"m\"]\nlabels=[\"+\"]\n[param.k]\nvalue=1\n[param.m]\nvalue=1\n", "x.toml:3: edge[0].between: unknown state \"Z\""},
+		{"states=[\"A\",\"B\"]\n[[edge]]\nbetween=[\"A\",\"A\"]\nrates=[\"k\",\"m\"]\nlabels=[\"+\"]\n[param.k]\nvalue=1\n[param.m]\nvalue=1\n", "self-loop"},
+		{"states=[\"A\",\"B\"]\n[[edge]]\nbetween=[\"A\",\"B\"]\nrates=[\"k\",\"m\"]\nlabels=[\"+\"]\n[param.k]\nvalue=-1\n[param.m]\nvalue=1\n", "x.toml:7: param.k.value: rate -1 is not a finite positive number"},
+		{"states=[\"A\",\"B\"]\n[[edge]]\nbetween=[\"A\",\"B\"]\nrates=[\"k\",\"m\"]\n[param.k]\nvalue=1\n[param.m]\nvalue=1\n", "no visible label"},
+		{"states=[\"A\",\"B\"]\n[[edge]]\nbetween=[\"A\",\"B\"]\nrates=[\"k\",\"m\"]\nlabels=[\"+\"]\n[param.k]\nvalue=1\n[param.m]\nvalue=1\n[param.q]\nvalue=2\n", "x.toml:10: param.q: parameter is declared but no rate uses it"},
+		{"states=[\"A\",\"B\",\"C\"]\n[[edge]]\nbetween=[\"A\",\"B\"]\nrates=[\"k\",\"m\"]\nlabels=[\"+\"]\n[param.k]\nvalue=1\n[param.m]\nvalue=1\n", "not strongly connected"},
+		{"states=[\"A\",\"B\"]\n[[edge]]\nbetween=[\"A\",\"B\"]\nrates=[\"k\",\"m\"]\nlabels=[\"+\"]\n[[edge]]\nbetween=[\"B\",\"A\"]\nrates=[\"k\",\"m\"]\n[param.k]\nvalue=1\n[param.m]\nvalue=1\n", "x.toml:7: edge[1].between: duplicate of edge 1"},
+		{"states=[\"A\",\"B\"\n", "x.toml:1: expected a comma"},
+	}
+	for _, c := range cases {
+		_, err := Parse(strings.NewReader(c.src), "x.toml")
+		if err == nil || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("want error containing %q, got %v", c.want, err)
+		}
+	}
+}
+
+// FuzzParse: the parser never panics, and an accepted spec yields a valid
+// network. The seed corpus runs in CI with go test.
+func FuzzParse(f *testing.F) {
+	src, err := os.ReadFile("../testdata/ring3.toml")
+	if err != nil {
+		f.Fatal(err)
+	}
+	f.Add(string(src))
+	f.Add("states=[\"A\",\"B\"]\n[[edge]]\nbetween=[\"A\",\"B\"]\nrates=[\"k\",\"m\"]\nlabels=[\"+\"]\n[param.k]\nvalue=1\n[param.m]\nvalue=1\n")
+	f.Add("[[edge]]\n[[edge]]\n[param.\"x\"]\n")
+	f.Fuzz(func(t *testing.T, s string) {
+		m, err := Parse(strings.NewReader(s), "fuzz.toml")
+		if err != nil {
+			return
+		}
+		net, err := m.Network(m.Start())
+		if err != nil {
+			t.Fatal(err)
+		}
+		if err := net.Validate(); err != nil {
+			t.Fatal(err)
+		}
+	})
+}
