@@ -26,6 +26,8 @@ func run(args []string, stdout, stderr io.Writer) int {
 	case "version", "--version":
 		fmt.Fprintf(stdout, "edgewise %s\n", version)
 		return 0
+	case "describe":
+		return cmdDescribe(args[1:], stdout, stderr)
 	case "help", "-h", "--help":
 		usage(stdout)
 		return 0
@@ -43,10 +45,12 @@ Usage:
   edgewise COMMAND [options]
 
 Commands:
+  describe  properties of a model: stationary law, currents, cycles, sigma
   version   print the tool version
   help      show this help
 
 Example:
-  edgewise version
+  edgewise describe testdata/ring3.toml
+  edgewise describe --help
 `)
 }
