@@ -28,6 +28,8 @@ func run(args []string, stdout, stderr io.Writer) int {
 		return 0
 	case "describe":
 		return cmdDescribe(args[1:], stdout, stderr)
+	case "simulate":
+		return cmdSimulate(args[1:], stdout, stderr)
 	case "help", "-h", "--help":
 		usage(stdout)
 		return 0
@@ -46,6 +48,7 @@ Usage:
 
 Commands:
   describe  properties of a model: stationary law, currents, cycles, sigma
+  simulate  exact simulation of a model's visible events, as CSV records
   version   print the tool version
   help      show this help
 

@@ -2,6 +2,8 @@ package main
 
 import (
 	"bytes"
+	"os"
+	"path/filepath"
 	"strings"
 	"testing"
 )
@@ -41,5 +43,34 @@ func TestDescribeRing3(t *testing.T) {
 	}
 	if code := run([]string{"describe", "--help"}, &out, &errb); code != 0 || !strings.Contains(out.String(), "Example:") {
 		t.Errorf("help: code %d", code)
+	}
+}
+
+// TestSimulateDeterministicAndSafe: the same seed gives byte-identical
+// files, an existing file is kept without --force, and the event count is
+// as asked.
+func TestSimulateDeterministicAndSafe(t *testing.T) {
+	dir := t.TempDir()
+	a, b := filepath.Join(dir, "a.csv"), filepath.Join(dir, "b.csv")
+	var out, errb bytes.Buffer
+	for _, p := range []string{a, b} {
+		if code := run([]string{"simulate", "../../testdata/ring3.toml", "-n", "500", "-r", "3", "--seed", "9", "-o", p}, &out, &errb); code != 0 {
+			t.Fatalf("code %d: %s", code, errb.String())
+		}
+	}
+	x, _ := os.ReadFile(a)
+	y, _ := os.ReadFile(b)
+	if !bytes.Equal(x, y) {
+		t.Fatal("same seed, different output")
+	}
+	if n := strings.Count(string(x), "\n"); n != 2+1500 {
+		t.Fatalf("%d lines, want 1502", n)
+	}
+	if code := run([]string{"simulate", "../../testdata/ring3.toml", "-o", a}, &out, &errb); code != 1 {
+		t.Fatalf("overwrite without --force: code %d", code)
+	}
+	y, _ = os.ReadFile(a)
+	if !bytes.Equal(x, y) {
+		t.Fatal("file changed without --force")
 	}
 }
