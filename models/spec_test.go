@@ -3,6 +3,7 @@ package models
 import (
 	"math"
 	"os"
+	"reflect"
 	"strings"
 	"testing"
 )
@@ -73,5 +74,40 @@ func FuzzParse(f *testing.F) {
 		if err := net.Validate(); err != nil {
 			t.Fatal(err)
 		}
+		var buf strings.Builder
+		if err := m.Write(&buf); err != nil {
+			t.Fatal(err)
+		}
+		back, err := Parse(strings.NewReader(buf.String()), "back.toml")
+		if err != nil {
+			t.Fatalf("written spec does not parse: %v\n%s", err, buf.String())
+		}
+		if !reflect.DeepEqual(m, back) {
+			t.Fatalf("round trip changed the model:\n%+v\n%+v", m, back)
+		}
 	})
+}
+
+// TestWriteRoundTrip: Parse(Write(m)) == m for the shipped spec and for a
+// spec with a one-way edge, a tie and an imperfect detector.
+func TestWriteRoundTrip(t *testing.T) {
+	src, _ := os.ReadFile("../testdata/ring3.toml")
+	other := "name=\"x\"\nstates=[\"A\",\"B\",\"C\"]\n[[edge]]\nbetween=[\"A\",\"B\"]\nrates=[\"k\",\"m\"]\nlabels=[\"+\",\"\"]\n[[edge]]\nbetween=[\"B\",\"C\"]\none_way=true\nrates=[\"k\"]\nlabels=[\"+\"]\n[[edge]]\nbetween=[\"C\",\"A\"]\nrates=[\"k\",\"m\"]\n[param.k]\nvalue=0.1\n[param.m]\nvalue=3.3e-7\nfixed=true\n[label.\"+\"]\ndetect=0.95\n"
+	for _, s := range []string{string(src), other} {
+		m, err := Parse(strings.NewReader(s), "in.toml")
+		if err != nil {
+			t.Fatal(err)
+		}
+		var buf strings.Builder
+		if err := m.Write(&buf); err != nil {
+			t.Fatal(err)
+		}
+		back, err := Parse(strings.NewReader(buf.String()), "out.toml")
+		if err != nil {
+			t.Fatalf("%v\n%s", err, buf.String())
+		}
+		if !reflect.DeepEqual(m, back) {
+			t.Fatalf("round trip changed the model:\n%+v\n%+v", m, back)
+		}
+	}
 }

@@ -1,0 +1,53 @@
+package models
+
+import (
+	"bufio"
+	"fmt"
+	"io"
+	"strconv"
+)
+
+// Write writes m as a TOML spec that Parse reads back to an equal Model, so
+// a fitted model can be simulated and fitted again. Floats are written with
+// the shortest representation that round-trips exactly.
+func (m *Model) Write(w io.Writer) error {
+	bw := bufio.NewWriter(w)
+	q := strconv.Quote
+	f := func(x float64) string { return strconv.FormatFloat(x, 'g', -1, 64) }
+	list := func(xs []string) string {
+		s := "["
+		for i, x := range xs {
+			if i > 0 {
+				s += ", "
+			}
+			s += q(x)
+		}
+		return s + "]"
+	}
+	fmt.Fprintf(bw, "name = %s\n", q(m.Name))
+	if m.Description != "" {
+		fmt.Fprintf(bw, "description = %s\n", q(m.Description))
+	}
+	fmt.Fprintf(bw, "states = %s\n", list(m.States))
+	for _, e := range m.Edges {
+		fmt.Fprintf(bw, "\n[[edge]]\nbetween = %s\n", list(e.Between[:]))
+		if e.OneWay {
+			fmt.Fprintf(bw, "one_way = true\nrates = %s\n", list(e.Rates[:1]))
+		} else {
+			fmt.Fprintf(bw, "rates = %s\n", list(e.Rates[:]))
+		}
+		if e.Labels != [2]string{} {
+			fmt.Fprintf(bw, "labels = %s\n", list(e.Labels[:]))
+		}
+	}
+	for _, p := range m.Params {
+		fmt.Fprintf(bw, "\n[param.%s]\nvalue = %s\n", q(p.Name), f(p.Value))
+		if p.Fixed {
+			fmt.Fprintf(bw, "fixed = true\n")
+		}
+	}
+	for _, l := range m.Labels {
+		fmt.Fprintf(bw, "\n[label.%s]\ndetect = %s\n", q(l.Name), f(l.Detect))
+	}
+	return bw.Flush()
+}
