@@ -74,17 +74,7 @@ func FuzzParse(f *testing.F) {
 		if err := net.Validate(); err != nil {
 			t.Fatal(err)
 		}
-		var buf strings.Builder
-		if err := m.Write(&buf); err != nil {
-			t.Fatal(err)
-		}
-		back, err := Parse(strings.NewReader(buf.String()), "back.toml")
-		if err != nil {
-			t.Fatalf("written spec does not parse: %v\n%s", err, buf.String())
-		}
-		if !reflect.DeepEqual(m, back) {
-			t.Fatalf("round trip changed the model:\n%+v\n%+v", m, back)
-		}
+		checkRoundTrip(t, m)
 	})
 }
 
@@ -98,16 +88,22 @@ func TestWriteRoundTrip(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		var buf strings.Builder
-		if err := m.Write(&buf); err != nil {
-			t.Fatal(err)
-		}
-		back, err := Parse(strings.NewReader(buf.String()), "out.toml")
-		if err != nil {
-			t.Fatalf("%v\n%s", err, buf.String())
-		}
-		if !reflect.DeepEqual(m, back) {
-			t.Fatalf("round trip changed the model:\n%+v\n%+v", m, back)
-		}
+		checkRoundTrip(t, m)
+	}
+}
+
+// checkRoundTrip fails unless Parse(Write(m)) equals m.
+func checkRoundTrip(t *testing.T, m *Model) {
+	t.Helper()
+	var buf strings.Builder
+	if err := m.Write(&buf); err != nil {
+		t.Fatal(err)
+	}
+	back, err := Parse(strings.NewReader(buf.String()), "back.toml")
+	if err != nil {
+		t.Fatalf("written spec does not parse: %v\n%s", err, buf.String())
+	}
+	if !reflect.DeepEqual(m, back) {
+		t.Fatalf("round trip changed the model:\n%+v\n%+v", m, back)
 	}
 }
