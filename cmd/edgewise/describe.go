@@ -9,8 +9,6 @@ import (
 	"strconv"
 
 	"edgewise/models"
-
-	"github.com/spf13/pflag"
 )
 
 const describeHelp = `Usage: edgewise describe MODEL.toml [options]
@@ -26,18 +24,10 @@ Options:
 `
 
 func cmdDescribe(args []string, stdout, stderr io.Writer) int {
-	fs := pflag.NewFlagSet("describe", pflag.ContinueOnError)
-	fs.SetOutput(stderr)
+	fs := newFlags("describe", describeHelp, args, stdout, stderr)
 	format := fs.StringP("format", "f", "table", "output format: table, markdown, csv or json")
-	fs.Usage = func() { fmt.Fprint(stderr, describeHelp); fs.PrintDefaults() }
-	if err := fs.Parse(args); err != nil {
-		if err == pflag.ErrHelp {
-			fs.SetOutput(stdout)
-			fmt.Fprint(stdout, describeHelp)
-			fs.PrintDefaults()
-			return 0
-		}
-		return 2
+	if code := parseFlags(fs, args); code >= 0 {
+		return code
 	}
 	if fs.NArg() != 1 {
 		fs.Usage()

@@ -3,7 +3,10 @@
 package main
 
 import (
+	"slices"
+
 	"fmt"
+	"github.com/spf13/pflag"
 	"io"
 	"os"
 )
@@ -56,4 +59,29 @@ Example:
   edgewise describe testdata/ring3.toml
   edgewise describe --help
 `)
+}
+
+// newFlags makes a subcommand's flag set whose usage text (help, then the
+// option list) goes to stdout when help was asked for and to stderr after a
+// usage error.
+func newFlags(name, help string, args []string, stdout, stderr io.Writer) *pflag.FlagSet {
+	fs := pflag.NewFlagSet(name, pflag.ContinueOnError)
+	fs.SetOutput(stderr)
+	if slices.Contains(args, "-h") || slices.Contains(args, "--help") {
+		fs.SetOutput(stdout)
+	}
+	fs.Usage = func() { fmt.Fprint(fs.Output(), help); fs.PrintDefaults() }
+	return fs
+}
+
+// parseFlags parses args; it returns -1 to go on, or the exit code (0 after
+// help, 2 after a usage error).
+func parseFlags(fs *pflag.FlagSet, args []string) int {
+	if err := fs.Parse(args); err != nil {
+		if err == pflag.ErrHelp {
+			return 0
+		}
+		return 2
+	}
+	return -1
 }

@@ -10,8 +10,6 @@ import (
 	"strconv"
 
 	"edgewise/models"
-
-	"github.com/spf13/pflag"
 )
 
 const simulateHelp = `Usage: edgewise simulate MODEL.toml [options]
@@ -28,22 +26,14 @@ Options:
 `
 
 func cmdSimulate(args []string, stdout, stderr io.Writer) int {
-	fs := pflag.NewFlagSet("simulate", pflag.ContinueOnError)
-	fs.SetOutput(stderr)
+	fs := newFlags("simulate", simulateHelp, args, stdout, stderr)
 	events := fs.IntP("events", "n", 1000, "visible events per record")
 	records := fs.IntP("records", "r", 1, "number of records")
 	seed := fs.Uint64P("seed", "s", 1, "random seed")
 	out := fs.StringP("output", "o", "-", "output file (- for standard output)")
 	force := fs.Bool("force", false, "overwrite an existing output file")
-	fs.Usage = func() { fmt.Fprint(stderr, simulateHelp); fs.PrintDefaults() }
-	if err := fs.Parse(args); err != nil {
-		if err == pflag.ErrHelp {
-			fmt.Fprint(stdout, simulateHelp)
-			fs.SetOutput(stdout)
-			fs.PrintDefaults()
-			return 0
-		}
-		return 2
+	if code := parseFlags(fs, args); code >= 0 {
+		return code
 	}
 	if fs.NArg() != 1 || *events < 1 || *records < 1 {
 		fs.Usage()
