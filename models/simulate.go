@@ -23,7 +23,7 @@ type Simulator struct {
 	exit  []float64   // exit rate q_i
 	state int
 	time  float64
-	net   *Network
+	pi    []float64 // stationary law, for StartStationary
 }
 
 type simJump struct {
@@ -44,8 +44,12 @@ func NewSimulator(net *Network, seed uint64) (*Simulator, error) {
 		rng:  rand.New(rand.NewPCG(seed, 0x9e3779b97f4a7c15)),
 		out:  make([][]simJump, k),
 		exit: make([]float64, k),
-		net:  net,
 	}
+	pi, err := net.Stationary()
+	if err != nil {
+		return nil, fmt.Errorf("simulate: %w", err)
+	}
+	s.pi = pi
 	for _, t := range net.Transitions() {
 		s.exit[t.From] += t.Rate
 		d := 1.0
@@ -71,11 +75,8 @@ func NewSimulator(net *Network, seed uint64) (*Simulator, error) {
 func (s *Simulator) Reset(state int, t float64) { s.state, s.time = state, t }
 
 // StartStationary draws the state from the stationary law and sets time 0.
-func (s *Simulator) StartStationary() error {
-	pi, err := s.net.Stationary()
-	if err != nil {
-		return err
-	}
+func (s *Simulator) StartStationary() {
+	pi := s.pi
 	u := s.rng.Float64()
 	st := len(pi) - 1
 	for i, p := range pi {
@@ -86,7 +87,6 @@ func (s *Simulator) StartStationary() error {
 		u -= p
 	}
 	s.Reset(st, 0)
-	return nil
 }
 
 // State returns the current state and time.

@@ -1,11 +1,9 @@
 package main
 
 import (
-	"bytes"
 	"fmt"
 	"io"
 	"math"
-	"os"
 	"strconv"
 
 	"edgewise/models"
@@ -34,17 +32,7 @@ func cmdDescribe(args []string, stdout, stderr io.Writer) int {
 		return 2
 	}
 	path := fs.Arg(0)
-	src, err := os.ReadFile(path)
-	if err != nil {
-		fmt.Fprintf(stderr, "edgewise: %v\n", err)
-		return 1
-	}
-	m, err := models.Parse(bytes.NewReader(src), path)
-	if err != nil {
-		fmt.Fprintf(stderr, "edgewise: %v\n", err)
-		return 1
-	}
-	net, err := m.Network(m.Start())
+	src, net, err := loadModel(path)
 	if err != nil {
 		fmt.Fprintf(stderr, "edgewise: %v\n", err)
 		return 1

@@ -3,12 +3,15 @@
 package main
 
 import (
-	"slices"
-
+	"bytes"
 	"fmt"
-	"github.com/spf13/pflag"
 	"io"
 	"os"
+	"slices"
+
+	"edgewise/models"
+
+	"github.com/spf13/pflag"
 )
 
 // version is the tool version stamped on every output.
@@ -84,4 +87,22 @@ func parseFlags(fs *pflag.FlagSet, args []string) int {
 		return 2
 	}
 	return -1
+}
+
+// loadModel reads and parses a model spec and builds its network at the
+// start values. src is returned for the checksum stamped on outputs.
+func loadModel(path string) ([]byte, *models.Network, error) {
+	src, err := os.ReadFile(path)
+	if err != nil {
+		return nil, nil, err
+	}
+	m, err := models.Parse(bytes.NewReader(src), path)
+	if err != nil {
+		return nil, nil, err
+	}
+	net, err := m.Network(m.Start())
+	if err != nil {
+		return nil, nil, err
+	}
+	return src, net, nil
 }

@@ -2,7 +2,6 @@ package main
 
 import (
 	"bufio"
-	"bytes"
 	"fmt"
 	"io"
 	"os"
@@ -40,17 +39,7 @@ func cmdSimulate(args []string, stdout, stderr io.Writer) int {
 		return 2
 	}
 	path := fs.Arg(0)
-	src, err := os.ReadFile(path)
-	if err != nil {
-		fmt.Fprintf(stderr, "edgewise: %v\n", err)
-		return 1
-	}
-	m, err := models.Parse(bytes.NewReader(src), path)
-	if err != nil {
-		fmt.Fprintf(stderr, "edgewise: %v\n", err)
-		return 1
-	}
-	net, err := m.Network(m.Start())
+	src, net, err := loadModel(path)
 	if err != nil {
 		fmt.Fprintf(stderr, "edgewise: %v\n", err)
 		return 1
@@ -67,9 +56,7 @@ func cmdSimulate(args []string, stdout, stderr io.Writer) int {
 		buf := make([]models.Event, 0, 4096)
 		line := make([]byte, 0, 64)
 		for r := 1; r <= *records; r++ {
-			if err := sim.StartStationary(); err != nil {
-				return err
-			}
+			sim.StartStationary()
 			for left := *events; left > 0; {
 				n := min(left, 4096)
 				buf, _ = sim.Visible(n, buf[:0])
