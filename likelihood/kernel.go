@@ -20,6 +20,7 @@ import (
 type Kernels struct {
 	N      int          // number of states
 	Labels []string     // label names, index = label number
+	Detect []float64    // detection probability per label
 	L      *mat.Dense   // full generator, rows sum to 0
 	D0     *mat.Dense   // hidden part
 	D      []*mat.Dense // D[l], visible part of label l
@@ -41,9 +42,11 @@ func NewKernels(net *models.Network) (*Kernels, error) {
 		D:      make([]*mat.Dense, len(net.Labels)),
 		Edges:  make([][]models.Transition, len(net.Labels)),
 		Labels: make([]string, len(net.Labels)),
+		Detect: make([]float64, len(net.Labels)),
 	}
 	for l, lab := range net.Labels {
 		k.Labels[l] = lab.Name
+		k.Detect[l] = lab.Detect
 		k.D[l] = mat.NewDense(n, n, nil)
 	}
 	visible := false
@@ -72,9 +75,9 @@ func NewKernels(net *models.Network) (*Kernels, error) {
 // SingleEdge reports whether every label sits on exactly one directed edge
 // and is detected with probability 1: the case where the state right after
 // each event is known and the likelihood is a product of psi values.
-func (k *Kernels) SingleEdge(net *models.Network) bool {
+func (k *Kernels) SingleEdge() bool {
 	for l, es := range k.Edges {
-		if len(es) != 1 || net.Labels[l].Detect != 1 {
+		if len(es) != 1 || k.Detect[l] != 1 {
 			return false
 		}
 	}
