@@ -2,6 +2,7 @@ package models
 
 import (
 	"fmt"
+	"math"
 	"math/rand/v2"
 )
 
@@ -24,6 +25,8 @@ type Simulator struct {
 	state int
 	time  float64
 	pi    []float64 // stationary law, for StartStationary
+	dead  float64   // dead time after each detected event
+	blind float64   // events at times <= blind are lost
 }
 
 type simJump struct {
@@ -41,9 +44,10 @@ func NewSimulator(net *Network, seed uint64) (*Simulator, error) {
 	}
 	k := len(net.States)
 	s := &Simulator{
-		rng:  rand.New(rand.NewPCG(seed, 0x9e3779b97f4a7c15)),
-		out:  make([][]simJump, k),
-		exit: make([]float64, k),
+		rng:   rand.New(rand.NewPCG(seed, 0x9e3779b97f4a7c15)),
+		out:   make([][]simJump, k),
+		exit:  make([]float64, k),
+		blind: math.Inf(-1),
 	}
 	pi, err := net.Stationary()
 	if err != nil {
@@ -71,8 +75,24 @@ func NewSimulator(net *Network, seed uint64) (*Simulator, error) {
 	return s, nil
 }
 
+// SetDeadTime sets the instrument's dead time delta >= 0 (time units):
+// after each detected event, visible jumps in the following delta are lost
+// (the system still makes them). Zero, the default, means no dead time.
+// The dead time also runs at the start of a record: Reset and
+// StartStationary clear it, so the first event of a record is never lost.
+func (s *Simulator) SetDeadTime(delta float64) error {
+	if math.IsNaN(delta) || math.IsInf(delta, 0) || delta < 0 {
+		return fmt.Errorf("simulate: dead time %v: want a finite value >= 0", delta)
+	}
+	s.dead = delta
+	return nil
+}
+
 // Reset puts the simulator in the given state at time t.
-func (s *Simulator) Reset(state int, t float64) { s.state, s.time = state, t }
+func (s *Simulator) Reset(state int, t float64) {
+	s.state, s.time = state, t
+	s.blind = math.Inf(-1)
+}
 
 // StartStationary draws the state from the stationary law and sets time 0.
 func (s *Simulator) StartStationary() {
@@ -127,6 +147,10 @@ func (s *Simulator) Visible(n int, dst []Event) ([]Event, int) {
 		if j.detect < 1 && s.rng.Float64() >= j.detect {
 			continue
 		}
+		if s.time <= s.blind {
+			continue
+		}
+		s.blind = s.time + s.dead
 		dst = append(dst, Event{Time: s.time, Label: j.label})
 		n--
 	}

@@ -112,6 +112,53 @@ func TestSimulatorDetection(t *testing.T) {
 	}
 }
 
+// TestSimulatorDeadTime: the dead time only removes events, so a run with
+// dead time delta equals the run without it (same seed, same random stream)
+// filtered by the rule "drop an event within delta after the last kept one".
+// That filter is a second, independent statement of the detection model.
+func TestSimulatorDeadTime(t *testing.T) {
+	net := ring([]float64{2, 3, 1, 4}, []float64{1, 0.5, 1, 0.2})
+	net.Labels = []Label{{Name: "+", Detect: 0.9}, {Name: "-", Detect: 1}}
+	net.Edges[0].Label = [2]int{0, 1}
+	const delta = 0.05
+	for rec := 0; rec < 3; rec++ {
+		plain, _ := NewSimulator(net, uint64(rec))
+		plain.StartStationary()
+		all, _ := plain.Visible(20000, nil)
+		blind, _ := NewSimulator(net, uint64(rec))
+		if err := blind.SetDeadTime(delta); err != nil {
+			t.Fatal(err)
+		}
+		blind.StartStationary()
+		var want []Event
+		last := math.Inf(-1)
+		for _, e := range all {
+			if e.Time > last+delta {
+				want = append(want, e)
+				last = e.Time
+			}
+		}
+		got, _ := blind.Visible(len(want), nil)
+		if len(want) > len(all)*99/100 {
+			t.Fatalf("dead time removed only %d of %d events: test too weak", len(all)-len(want), len(all))
+		}
+		for i := range want {
+			if got[i] != want[i] {
+				t.Fatalf("record %d event %d: %+v, want %+v", rec, i, got[i], want[i])
+			}
+			if i > 0 && got[i].Time-got[i-1].Time <= delta {
+				t.Fatalf("gap %g inside the dead time", got[i].Time-got[i-1].Time)
+			}
+		}
+	}
+	s, _ := NewSimulator(net, 1)
+	for _, bad := range []float64{-1, math.NaN(), math.Inf(1)} {
+		if s.SetDeadTime(bad) == nil {
+			t.Errorf("dead time %v accepted", bad)
+		}
+	}
+}
+
 func BenchmarkSimulatorRing4(b *testing.B) {
 	net := ring([]float64{3, 2, 4, 1}, []float64{1, 0.5, 1, 2})
 	sim, _ := NewSimulator(net, 1)
