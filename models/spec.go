@@ -26,15 +26,28 @@ import (
 //	[param.k1]
 //	value = 2.0              # start value, or the value when fixed (1/time)
 //	fixed = false
+//	lower = 0.01             # bounds for fitting (default 0 and +inf)
+//	upper = 100
 //	[label."+"]
-//	detect = 0.95            # detection probability, default 1
+//	detect = 0.95            # detection probability (default 1), or the
+//	                         # name of a parameter to fit: detect = "p"
+//	[[affinity]]
+//	cycle = ["A", "B", "C", "A"]  # a cycle of the network
+//	value = 4.0                   # its affinity in k_BT
+//	solve = "m1"                  # the rate solved from the others
+//
+// An affinity constraint fixes ln(prod forward rates / prod backward rates)
+// along the cycle. It is enforced by computing the solved rate from the
+// others, so it holds exactly for every parameter vector; a solved rate is
+// neither free nor fixed and has no [param] table.
 type Model struct {
 	Name        string
 	Description string
 	States      []string
 	Edges       []EdgeSpec
-	Params      []Param
-	Labels      []Label
+	Params      []Param     // declared parameters, sorted by name
+	Labels      []LabelSpec // labels, sorted by name
+	Affinities  []AffinitySpec
 }
 
 // EdgeSpec is one edge of a Model.
@@ -45,11 +58,39 @@ type EdgeSpec struct {
 	OneWay  bool      // a declared irreversible edge (Rates[1] absent)
 }
 
-// Param is a named rate parameter in 1/time.
+// ParamKind says what a parameter is.
+type ParamKind int
+
+const (
+	RateParam   ParamKind = iota // a rate in 1/time, > 0
+	DetectParam                  // a detection probability in (0, 1]
+)
+
+// Param is a named parameter: a rate in 1/time, or a detection probability.
 type Param struct {
 	Name  string
-	Value float64
+	Kind  ParamKind
+	Value float64 // start value, or the value when Fixed
 	Fixed bool
+	// Lower and Upper bound the value when it is fitted. Defaults: 0 and
+	// +Inf for a rate, 0 and 1 for a detection probability. The value is
+	// always > 0, so a lower bound of 0 is open.
+	Lower, Upper float64
+}
+
+// LabelSpec is a visible label of a Model: a fixed detection probability,
+// or the name of a DetectParam parameter.
+type LabelSpec struct {
+	Name   string
+	Detect float64 // used when Param is ""
+	Param  string
+}
+
+// AffinitySpec is a cycle-affinity constraint.
+type AffinitySpec struct {
+	Cycle []string // states of a cycle, closed: Cycle[0] == Cycle[len-1]
+	Value float64  // affinity in k_BT
+	Solve string   // the rate parameter computed from the constraint
 }
 
 // SpecError is one problem in a model spec, located by file, line and key.
@@ -78,6 +119,13 @@ type rawSpec struct {
 	Edge        []rawEdge           `toml:"edge"`
 	Param       map[string]rawParam `toml:"param"`
 	Label       map[string]rawLabel `toml:"label"`
+	Affinity    []rawAffinity       `toml:"affinity"`
+}
+
+type rawAffinity struct {
+	Cycle []string `toml:"cycle"`
+	Value *float64 `toml:"value"`
+	Solve string   `toml:"solve"`
 }
 
 type rawEdge struct {
@@ -90,10 +138,12 @@ type rawEdge struct {
 type rawParam struct {
 	Value *float64 `toml:"value"`
 	Fixed bool     `toml:"fixed"`
+	Lower *float64 `toml:"lower"`
+	Upper *float64 `toml:"upper"`
 }
 
 type rawLabel struct {
-	Detect *float64 `toml:"detect"`
+	Detect any `toml:"detect"` // a number, or a parameter name
 }
 
 // Parse reads a TOML model spec; file names the source in errors. All
@@ -189,41 +239,122 @@ func Parse(r io.Reader, file string) (*Model, error) {
 	if len(raw.Edge) == 0 {
 		bad("edge", "no edges")
 	}
+	// Labels first: a label's detect may name a parameter.
+	detectParam := map[string]string{} // parameter -> label
+	for _, name := range sortedKeys(raw.Label) {
+		if !usedLabel[name] {
+			bad("label."+name, "label is declared but no edge carries it")
+		}
+	}
+	for _, name := range sortedKeys(usedLabel) {
+		key := "label." + name + ".detect"
+		ls := LabelSpec{Name: name, Detect: 1}
+		if l, ok := raw.Label[name]; ok && l.Detect != nil {
+			switch d := l.Detect.(type) {
+			case float64:
+				ls.Detect = d
+			case int64:
+				ls.Detect = float64(d)
+			case string:
+				ls.Param, ls.Detect = d, 0
+			default:
+				bad(key, "want a probability or a parameter name, not %T", l.Detect)
+			}
+			if ls.Param == "" && !(ls.Detect > 0 && ls.Detect <= 1) {
+				bad(key, "detection probability %g is not in (0, 1]", ls.Detect)
+			}
+			if ls.Param != "" {
+				if used[ls.Param] {
+					bad(key, "parameter %q is already a rate; a detection probability needs its own", ls.Param)
+				} else if _, dup := detectParam[ls.Param]; !dup {
+					detectParam[ls.Param] = name // labels may share one
+				}
+			}
+		}
+		m.Labels = append(m.Labels, ls)
+	}
+	solved := map[string]int{}
+	for i, a := range raw.Affinity {
+		if a.Solve != "" {
+			if _, dup := solved[a.Solve]; !dup {
+				solved[a.Solve] = i
+			}
+		}
+	}
 	for _, name := range sortedKeys(raw.Param) {
 		p := raw.Param[name]
 		key := "param." + name
-		if !used[name] {
-			bad(key, "parameter is declared but no rate uses it")
+		kind := RateParam
+		if _, ok := detectParam[name]; ok {
+			kind = DetectParam
+		} else if !used[name] {
+			bad(key, "parameter is declared but no rate or detection uses it")
+		}
+		if i, ok := solved[name]; ok {
+			bad(key, "parameter is solved from affinity constraint %d and takes no [param] table", i+1)
+			continue
 		}
 		if p.Value == nil {
 			bad(key, "missing value")
 			continue
 		}
-		if v := *p.Value; !(v > 0) || math.IsInf(v, 0) {
-			bad(key+".value", "rate %g is not a finite positive number", v)
+		q := Param{Name: name, Kind: kind, Value: *p.Value, Fixed: p.Fixed, Lower: 0, Upper: math.Inf(1)}
+		if kind == DetectParam {
+			q.Upper = 1
 		}
-		m.Params = append(m.Params, Param{Name: name, Value: *p.Value, Fixed: p.Fixed})
+		if p.Lower != nil {
+			q.Lower = *p.Lower
+		}
+		if p.Upper != nil {
+			q.Upper = *p.Upper
+		}
+		v := q.Value
+		switch {
+		case kind == RateParam && (!(v > 0) || math.IsInf(v, 0)):
+			bad(key+".value", "rate %g is not a finite positive number", v)
+		case kind == DetectParam && !(v > 0 && v <= 1):
+			bad(key+".value", "detection probability %g is not in (0, 1]", v)
+		case math.IsNaN(q.Lower) || q.Lower < 0 || math.IsInf(q.Lower, 0):
+			bad(key+".lower", "lower bound %g is not a finite number >= 0", q.Lower)
+		case math.IsNaN(q.Upper) || q.Upper <= q.Lower || (kind == DetectParam && q.Upper > 1):
+			bad(key+".upper", "upper bound %g is not above the lower bound %g%s", q.Upper, q.Lower, map[bool]string{true: " and at most 1", false: ""}[kind == DetectParam])
+		case !q.Fixed && (v < q.Lower || v > q.Upper):
+			bad(key+".value", "start value %g is outside the bounds [%g, %g]", v, q.Lower, q.Upper)
+		}
+		m.Params = append(m.Params, q)
 	}
 	for _, name := range sortedKeys(used) {
 		if _, ok := raw.Param[name]; !ok {
-			bad("param", "rate parameter %q is used by an edge but has no [param.%s] value", name, name)
-		}
-	}
-	for _, name := range sortedKeys(raw.Label) {
-		key := "label." + name
-		if !usedLabel[name] {
-			bad(key, "label is declared but no edge carries it")
-		}
-	}
-	for _, name := range sortedKeys(usedLabel) {
-		d := 1.0
-		if l, ok := raw.Label[name]; ok && l.Detect != nil {
-			d = *l.Detect
-			if !(d > 0 && d <= 1) {
-				bad("label."+name+".detect", "detection probability %g is not in (0, 1]", d)
+			if _, ok := solved[name]; !ok {
+				bad("param", "rate parameter %q is used by an edge but has no [param.%s] value", name, name)
 			}
 		}
-		m.Labels = append(m.Labels, Label{Name: name, Detect: d})
+	}
+	for _, name := range sortedKeys(detectParam) {
+		if _, ok := raw.Param[name]; !ok {
+			bad("label."+detectParam[name]+".detect", "detection parameter %q has no [param.%s] value", name, name)
+		}
+	}
+	if len(errs) == 0 {
+		for i, a := range raw.Affinity {
+			key := fmt.Sprintf("affinity[%d]", i)
+			as := AffinitySpec{Cycle: a.Cycle, Solve: a.Solve}
+			if a.Value == nil {
+				bad(key, "missing value (the cycle affinity in k_BT)")
+				continue
+			}
+			as.Value = *a.Value
+			if math.IsNaN(as.Value) || math.IsInf(as.Value, 0) {
+				bad(key+".value", "affinity %g is not a finite number", as.Value)
+			}
+			if n := len(as.Cycle); n > 0 && as.Cycle[0] != as.Cycle[n-1] {
+				as.Cycle = append(slices.Clip(as.Cycle), as.Cycle[0])
+			}
+			m.Affinities = append(m.Affinities, as)
+		}
+		for _, ce := range m.checkAffinities() {
+			bad(fmt.Sprintf("affinity[%d].%s", ce.index, ce.field), "%s", ce.msg)
+		}
 	}
 	if len(usedLabel) == 0 {
 		bad("edge", "no visible label: at least one direction of one edge must carry a label")
@@ -266,32 +397,29 @@ func (m *Model) Start() []float64 {
 }
 
 // Network returns the numeric network for free-parameter values x (in the
-// order of Free, 1/time); fixed parameters keep their values and a tied
-// name gives every rate that carries it the same value.
+// order of Free: rates in 1/time, detection probabilities); fixed
+// parameters keep their values, a tied name gives every rate that carries it
+// the same value, and each affinity-solved rate is computed so that its
+// constraint holds exactly.
 func (m *Model) Network(x []float64) (*Network, error) {
-	free := m.Free()
-	if len(x) != len(free) {
-		return nil, fmt.Errorf("model %s: %d free parameter values, want %d", m.Name, len(x), len(free))
-	}
-	val := map[string]float64{}
-	k := 0
-	for _, p := range m.Params {
-		if p.Fixed {
-			val[p.Name] = p.Value
-		} else {
-			val[p.Name] = x[k]
-			k++
-		}
+	val, err := m.values(x)
+	if err != nil {
+		return nil, err
 	}
 	idx := map[string]int{}
 	for i, s := range m.States {
 		idx[s] = i
 	}
 	lab := map[string]int{}
+	net := &Network{States: append([]string(nil), m.States...)}
 	for i, l := range m.Labels {
 		lab[l.Name] = i
+		d := l.Detect
+		if l.Param != "" {
+			d = val[l.Param]
+		}
+		net.Labels = append(net.Labels, Label{Name: l.Name, Detect: d})
 	}
-	net := &Network{States: append([]string(nil), m.States...), Labels: append([]Label(nil), m.Labels...)}
 	for _, e := range m.Edges {
 		ne := Edge{From: idx[e.Between[0]], To: idx[e.Between[1]], Label: [2]int{Hidden, Hidden}}
 		for d := 0; d < 2; d++ {

@@ -39,7 +39,7 @@ func TestParseErrors(t *testing.T) {
 		{"states=[\"A\",\"B\"]\n[[edge]]\nbetween=[\"A\",\"A\"]\nrates=[\"k\",\"m\"]\nlabels=[\"+\"]\n[param.k]\nvalue=1\n[param.m]\nvalue=1\n", "self-loop"},
 		{"states=[\"A\",\"B\"]\n[[edge]]\nbetween=[\"A\",\"B\"]\nrates=[\"k\",\"m\"]\nlabels=[\"+\"]\n[param.k]\nvalue=-1\n[param.m]\nvalue=1\n", "x.toml:7: param.k.value: rate -1 is not a finite positive number"},
 		{"states=[\"A\",\"B\"]\n[[edge]]\nbetween=[\"A\",\"B\"]\nrates=[\"k\",\"m\"]\n[param.k]\nvalue=1\n[param.m]\nvalue=1\n", "no visible label"},
-		{"states=[\"A\",\"B\"]\n[[edge]]\nbetween=[\"A\",\"B\"]\nrates=[\"k\",\"m\"]\nlabels=[\"+\"]\n[param.k]\nvalue=1\n[param.m]\nvalue=1\n[param.q]\nvalue=2\n", "x.toml:10: param.q: parameter is declared but no rate uses it"},
+		{"states=[\"A\",\"B\"]\n[[edge]]\nbetween=[\"A\",\"B\"]\nrates=[\"k\",\"m\"]\nlabels=[\"+\"]\n[param.k]\nvalue=1\n[param.m]\nvalue=1\n[param.q]\nvalue=2\n", "x.toml:10: param.q: parameter is declared but no rate or detection uses it"},
 		{"states=[\"A\",\"B\",\"C\"]\n[[edge]]\nbetween=[\"A\",\"B\"]\nrates=[\"k\",\"m\"]\nlabels=[\"+\"]\n[param.k]\nvalue=1\n[param.m]\nvalue=1\n", "not strongly connected"},
 		{"states=[\"A\",\"B\"]\n[[edge]]\nbetween=[\"A\",\"B\"]\nrates=[\"k\",\"m\"]\nlabels=[\"+\"]\n[[edge]]\nbetween=[\"B\",\"A\"]\nrates=[\"k\",\"m\"]\n[param.k]\nvalue=1\n[param.m]\nvalue=1\n", "x.toml:7: edge[1].between: duplicate of edge 1"},
 		{"states=[\"A\",\"B\"\n", "x.toml:1: expected a comma"},
@@ -60,6 +60,13 @@ func FuzzParse(f *testing.F) {
 		f.Fatal(err)
 	}
 	f.Add(string(src))
+	for _, name := range []string{"offedge", "shared-label", "balanced", "twocycle-stall", "ring4"} {
+		more, err := os.ReadFile("../testdata/" + name + ".toml")
+		if err != nil {
+			f.Fatal(err)
+		}
+		f.Add(string(more))
+	}
 	f.Add("states=[\"A\",\"B\"]\n[[edge]]\nbetween=[\"A\",\"B\"]\nrates=[\"k\",\"m\"]\nlabels=[\"+\"]\n[param.k]\nvalue=1\n[param.m]\nvalue=1\n")
 	f.Add("[[edge]]\n[[edge]]\n[param.\"x\"]\n")
 	f.Fuzz(func(t *testing.T, s string) {

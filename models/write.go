@@ -4,6 +4,7 @@ import (
 	"bufio"
 	"fmt"
 	"io"
+	"math"
 	"strconv"
 )
 
@@ -45,9 +46,26 @@ func (m *Model) Write(w io.Writer) error {
 		if p.Fixed {
 			fmt.Fprintf(bw, "fixed = true\n")
 		}
+		if p.Lower != 0 {
+			fmt.Fprintf(bw, "lower = %s\n", f(p.Lower))
+		}
+		top := math.Inf(1)
+		if p.Kind == DetectParam {
+			top = 1
+		}
+		if p.Upper != top {
+			fmt.Fprintf(bw, "upper = %s\n", f(p.Upper))
+		}
 	}
 	for _, l := range m.Labels {
-		fmt.Fprintf(bw, "\n[label.%s]\ndetect = %s\n", q(l.Name), f(l.Detect))
+		if l.Param != "" {
+			fmt.Fprintf(bw, "\n[label.%s]\ndetect = %s\n", q(l.Name), q(l.Param))
+		} else {
+			fmt.Fprintf(bw, "\n[label.%s]\ndetect = %s\n", q(l.Name), f(l.Detect))
+		}
+	}
+	for _, a := range m.Affinities {
+		fmt.Fprintf(bw, "\n[[affinity]]\ncycle = %s\nvalue = %s\nsolve = %s\n", list(a.Cycle), f(a.Value), q(a.Solve))
 	}
 	return bw.Flush()
 }

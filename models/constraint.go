@@ -1,0 +1,416 @@
+package models
+
+import (
+	"fmt"
+	"math"
+	"slices"
+	"strings"
+
+	"gonum.org/v1/gonum/mat"
+)
+
+// Affinity constraints live in log space. Write a = ln p for the value of
+// each rate parameter. The affinity of a cycle is linear in a,
+//
+//	A_C = sum_steps (ln w_forward - ln w_backward) = sum_j c_Cj a_j,
+//
+// with integer coefficients c_Cj (a tied name may appear several times). For
+// k constraints with values v and solved parameters S (one per constraint),
+// split c into the solved columns C_S (k x k) and the rest C_R:
+//
+//	a_S = C_S^{-1} (v - C_R a_R),
+//
+// so every constraint holds exactly for every value of the other parameters.
+// The system is valid when the rows of c are linearly independent (else two
+// constraints repeat or contradict each other) and C_S is invertible.
+
+// affinitySystem is the linear system of a model's affinity constraints.
+type affinitySystem struct {
+	names []string   // rate parameter names with a coefficient in some constraint
+	col   map[string]int
+	c     *mat.Dense // k x len(names) coefficients
+	v     []float64  // constraint values
+	solve []int      // column of the solved parameter of each constraint
+	lu    mat.LU     // of C_S
+}
+
+// constraintError is one problem with an affinity constraint.
+type constraintError struct {
+	index int    // constraint, 0-based
+	field string // "cycle", "solve", "value"
+	msg   string
+}
+
+// cycleCoefficients returns the coefficients of ln(rate parameter) in the
+// affinity of the closed state sequence cycle.
+func (m *Model) cycleCoefficients(cycle []string) (map[string]float64, error) {
+	n := len(cycle)
+	if n < 4 || cycle[0] != cycle[n-1] {
+		return nil, fmt.Errorf("states %v do not form a cycle: need at least three distinct states, returning to the first", cycle)
+	}
+	known := map[string]bool{}
+	for _, s := range m.States {
+		known[s] = true
+	}
+	seen := map[string]bool{}
+	for _, s := range cycle[:n-1] {
+		if !known[s] {
+			return nil, fmt.Errorf("unknown state %q", s)
+		}
+		if seen[s] {
+			return nil, fmt.Errorf("states %v do not form a cycle: %q is visited twice", cycle, s)
+		}
+		seen[s] = true
+	}
+	coef := map[string]float64{}
+	for i := 0; i+1 < n; i++ {
+		a, b := cycle[i], cycle[i+1]
+		found := false
+		for _, e := range m.Edges {
+			d := -1
+			switch {
+			case e.Between[0] == a && e.Between[1] == b:
+				d = 0
+			case e.Between[1] == a && e.Between[0] == b:
+				d = 1
+			}
+			if d < 0 {
+				continue
+			}
+			found = true
+			if e.OneWay {
+				return nil, fmt.Errorf("the cycle runs through the one-way edge %s-%s, so its affinity is infinite and cannot be constrained", e.Between[0], e.Between[1])
+			}
+			coef[e.Rates[d]]++
+			coef[e.Rates[1-d]]--
+		}
+		if !found {
+			return nil, fmt.Errorf("states %v do not form a cycle: no edge joins %s and %s", cycle, a, b)
+		}
+	}
+	for k, c := range coef {
+		if c == 0 {
+			delete(coef, k)
+		}
+	}
+	return coef, nil
+}
+
+// checkAffinities validates the affinity constraints of a parsed model and
+// returns one error per problem.
+func (m *Model) checkAffinities() []constraintError {
+	var errs []constraintError
+	bad := func(i int, field, format string, a ...any) {
+		errs = append(errs, constraintError{i, field, fmt.Sprintf(format, a...)})
+	}
+	fixed := map[string]bool{}
+	for _, p := range m.Params {
+		if p.Fixed {
+			fixed[p.Name] = true
+		}
+	}
+	solvedBy := map[string]int{}
+	ok := true
+	for i, a := range m.Affinities {
+		coef, err := m.cycleCoefficients(a.Cycle)
+		if err != nil {
+			bad(i, "cycle", "%v", err)
+			ok = false
+			continue
+		}
+		var cands []string
+		for _, name := range sortedKeys(coef) {
+			if !fixed[name] {
+				cands = append(cands, name)
+			}
+		}
+		switch {
+		case len(coef) == 0:
+			bad(i, "cycle", "the ties make this cycle's affinity identically 0; it cannot be constrained")
+			ok = false
+		case a.Solve == "":
+			bad(i, "solve", "missing: name the rate this constraint determines (one of %s)", strings.Join(cands, ", "))
+			ok = false
+		case coef[a.Solve] == 0:
+			bad(i, "solve", "%q is not a rate of this cycle (or it appears forward and backward and cancels); choose one of %s", a.Solve, strings.Join(cands, ", "))
+			ok = false
+		default:
+			if j, dup := solvedBy[a.Solve]; dup {
+				bad(i, "solve", "%q is already solved by constraint %d; each constraint needs its own rate", a.Solve, j+1)
+				ok = false
+			}
+			solvedBy[a.Solve] = i
+		}
+	}
+	if !ok || len(m.Affinities) == 0 {
+		return errs
+	}
+	sys := m.buildSystem()
+	// Linear independence of the constraint rows, one at a time: a row in
+	// the span of the earlier rows either repeats or contradicts them.
+	var basis []int
+	for i := range m.Affinities {
+		if len(basis) > 0 {
+			y, res := project(sys.c, basis, i)
+			if res < 1e-9 {
+				implied := 0.0
+				var with []string
+				for k, b := range basis {
+					implied += y[k] * sys.v[b]
+					if math.Abs(y[k]) > 1e-9 {
+						with = append(with, fmt.Sprint(b+1))
+					}
+				}
+				if math.Abs(implied-sys.v[i]) <= 1e-9*(1+math.Abs(implied)) {
+					bad(i, "cycle", "repeats constraint %s: that already fixes this cycle's affinity at %.6g k_BT", strings.Join(with, ", "), implied)
+				} else {
+					bad(i, "value", "contradicts constraint %s: that fixes this cycle's affinity at %.6g k_BT, not %g", strings.Join(with, ", "), implied, sys.v[i])
+				}
+				continue
+			}
+		}
+		basis = append(basis, i)
+	}
+	if len(errs) > 0 {
+		return errs
+	}
+	if err := sys.factor(); err != nil {
+		bad(len(m.Affinities)-1, "solve", "%v", err)
+	}
+	return errs
+}
+
+// project least-squares fits row i of c by the rows in basis and returns the
+// coefficients and the relative residual norm.
+func project(c *mat.Dense, basis []int, i int) ([]float64, float64) {
+	_, n := c.Dims()
+	b := mat.NewDense(n, len(basis), nil)
+	for k, r := range basis {
+		for j := 0; j < n; j++ {
+			b.Set(j, k, c.At(r, j))
+		}
+	}
+	target := mat.NewVecDense(n, mat.Row(nil, i, c))
+	var y mat.VecDense
+	if err := y.SolveVec(b, target); err != nil {
+		return nil, math.Inf(1)
+	}
+	var fit mat.VecDense
+	fit.MulVec(b, &y)
+	fit.SubVec(&fit, target)
+	return y.RawVector().Data, mat.Norm(&fit, 2) / math.Max(mat.Norm(target, 2), 1)
+}
+
+// buildSystem assembles the coefficients of the (already checked) affinity
+// constraints.
+func (m *Model) buildSystem() *affinitySystem {
+	k := len(m.Affinities)
+	coefs := make([]map[string]float64, k)
+	set := map[string]bool{}
+	for i, a := range m.Affinities {
+		coefs[i], _ = m.cycleCoefficients(a.Cycle)
+		for name := range coefs[i] {
+			set[name] = true
+		}
+	}
+	sys := &affinitySystem{names: sortedKeys(set), col: map[string]int{}, v: make([]float64, k), solve: make([]int, k)}
+	for j, name := range sys.names {
+		sys.col[name] = j
+	}
+	sys.c = mat.NewDense(k, len(sys.names), nil)
+	for i, a := range m.Affinities {
+		for name, c := range coefs[i] {
+			sys.c.Set(i, sys.col[name], c)
+		}
+		sys.v[i] = a.Value
+		sys.solve[i] = sys.col[a.Solve]
+	}
+	return sys
+}
+
+// factor LU-factors C_S and reports when it is singular.
+func (s *affinitySystem) factor() error {
+	k := len(s.v)
+	cs := mat.NewDense(k, k, nil)
+	for i := 0; i < k; i++ {
+		for j, col := range s.solve {
+			cs.Set(i, j, s.c.At(i, col))
+		}
+	}
+	s.lu.Factorize(cs)
+	if cond := s.lu.Cond(); math.IsInf(cond, 0) || cond > 1e12 {
+		var names []string
+		for _, col := range s.solve {
+			names = append(names, s.names[col])
+		}
+		return fmt.Errorf("the solved rates %s cannot all be computed from these constraints (they enter them in a linearly dependent way); choose other rates to solve", strings.Join(names, ", "))
+	}
+	return nil
+}
+
+// isSolved reports whether column j is a solved parameter.
+func (s *affinitySystem) isSolved(j int) bool { return slices.Contains(s.solve, j) }
+
+// apply computes the solved parameters from the others in val (which must
+// hold every non-solved name of the system) and stores them in val.
+func (s *affinitySystem) apply(val map[string]float64) error {
+	k := len(s.v)
+	rhs := mat.NewVecDense(k, append([]float64(nil), s.v...))
+	for j, name := range s.names {
+		if s.isSolved(j) {
+			continue
+		}
+		a := math.Log(val[name])
+		for i := 0; i < k; i++ {
+			rhs.SetVec(i, rhs.AtVec(i)-s.c.At(i, j)*a)
+		}
+	}
+	var y mat.VecDense
+	if err := s.lu.SolveVecTo(&y, false, rhs); err != nil {
+		return err
+	}
+	for i, col := range s.solve {
+		w := math.Exp(y.AtVec(i))
+		if w == 0 || math.IsInf(w, 0) || math.IsNaN(w) {
+			return fmt.Errorf("solved rate %s = exp(%g) is out of floating-point range", s.names[col], y.AtVec(i))
+		}
+		val[s.names[col]] = w
+	}
+	return nil
+}
+
+// values returns every parameter's value (declared and solved) for the
+// free-parameter vector x.
+func (m *Model) values(x []float64) (map[string]float64, error) {
+	free := m.Free()
+	if len(x) != len(free) {
+		return nil, fmt.Errorf("model %s: %d free parameter values, want %d", m.Name, len(x), len(free))
+	}
+	val := map[string]float64{}
+	k := 0
+	for _, p := range m.Params {
+		v := p.Value
+		if !p.Fixed {
+			v = x[k]
+			k++
+			if math.IsNaN(v) || math.IsInf(v, 0) || v <= 0 || (p.Kind == DetectParam && v > 1) {
+				return nil, fmt.Errorf("model %s: parameter %s = %g is out of range", m.Name, p.Name, v)
+			}
+		}
+		val[p.Name] = v
+	}
+	if len(m.Affinities) == 0 {
+		return val, nil
+	}
+	sys := m.buildSystem()
+	if err := sys.factor(); err != nil {
+		return nil, fmt.Errorf("model %s: %w", m.Name, err)
+	}
+	if err := sys.apply(val); err != nil {
+		return nil, fmt.Errorf("model %s: %w", m.Name, err)
+	}
+	return val, nil
+}
+
+// Values returns the value of every parameter, solved ones included, for
+// the free-parameter vector x, by name.
+func (m *Model) Values(x []float64) (map[string]float64, error) { return m.values(x) }
+
+// Jacobian holds the derivatives of a model's network with respect to its
+// free parameters x (in the order of Model.Free), for the chain rule from
+// network-level gradients to parameter gradients:
+//
+//	d f/d x_j = sum_t (d f/d ln w_t) LogRate[t][j] / x_j + sum_l (d f/d p_l) Detect[l][j]
+type Jacobian struct {
+	// LogRate[2*e+d][j] = d ln w(edge e, direction d) / d ln x_j. Rows of
+	// absent one-way directions are zero. For a tied rate the entry is 1,
+	// for a fixed rate 0, and for an affinity-solved rate it is
+	// -(C_S^{-1} C_R)_{s,j}: constant, because the constraints are linear
+	// in log space.
+	LogRate [][]float64
+	// Detect[l][j] = d p_l / d x_j: 1 when label l's detection probability
+	// is the free parameter j, else 0.
+	Detect [][]float64
+}
+
+// Jacobian returns the derivatives of the network's log-rates and detection
+// probabilities with respect to the free parameters. The log-rate part does
+// not depend on x; x is checked as for Network.
+func (m *Model) Jacobian(x []float64) (*Jacobian, error) {
+	if _, err := m.values(x); err != nil {
+		return nil, err
+	}
+	free := m.Free()
+	fcol := map[string]int{}
+	for j, name := range free {
+		fcol[name] = j
+	}
+	// dlog[name][j] = d ln val(name) / d ln x_j
+	dlog := map[string][]float64{}
+	for _, name := range free {
+		row := make([]float64, len(free))
+		row[fcol[name]] = 1
+		dlog[name] = row
+	}
+	if len(m.Affinities) > 0 {
+		sys := m.buildSystem()
+		if err := sys.factor(); err != nil {
+			return nil, err
+		}
+		k := len(sys.v)
+		rows := make([][]float64, k)
+		for i := range rows {
+			rows[i] = make([]float64, len(free))
+		}
+		for j, name := range sys.names {
+			fj, isFree := fcol[name]
+			if sys.isSolved(j) || !isFree {
+				continue
+			}
+			col := mat.NewVecDense(k, mat.Col(nil, j, sys.c))
+			var y mat.VecDense
+			if err := sys.lu.SolveVecTo(&y, false, col); err != nil {
+				return nil, err
+			}
+			for i := 0; i < k; i++ {
+				rows[i][fj] = -y.AtVec(i)
+			}
+		}
+		for i, col := range sys.solve {
+			dlog[sys.names[col]] = rows[i]
+		}
+	}
+	jac := &Jacobian{LogRate: make([][]float64, 2*len(m.Edges)), Detect: make([][]float64, len(m.Labels))}
+	zero := make([]float64, len(free))
+	for e, es := range m.Edges {
+		for d := 0; d < 2; d++ {
+			row := make([]float64, len(free))
+			if !(d == 1 && es.OneWay) {
+				if r, ok := dlog[es.Rates[d]]; ok {
+					copy(row, r)
+				}
+			}
+			jac.LogRate[2*e+d] = row
+		}
+	}
+	for l, ls := range m.Labels {
+		row := append([]float64(nil), zero...)
+		if j, ok := fcol[ls.Param]; ok && ls.Param != "" {
+			row[j] = 1
+		}
+		jac.Detect[l] = row
+	}
+	return jac, nil
+}
+
+// Bounds returns the lower and upper bounds of the free parameters, in the
+// order of Free.
+func (m *Model) Bounds() (lower, upper []float64) {
+	for _, p := range m.Params {
+		if !p.Fixed {
+			lower = append(lower, p.Lower)
+			upper = append(upper, p.Upper)
+		}
+	}
+	return lower, upper
+}
