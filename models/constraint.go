@@ -26,7 +26,7 @@ import (
 
 // affinitySystem is the linear system of a model's affinity constraints.
 type affinitySystem struct {
-	names []string   // rate parameter names with a coefficient in some constraint
+	names []string // rate parameter names with a coefficient in some constraint
 	col   map[string]int
 	c     *mat.Dense // k x len(names) coefficients
 	v     []float64  // constraint values
