@@ -5,15 +5,18 @@ import (
 	"io"
 	"math"
 	"strconv"
+	"strings"
 
 	"edgewise/models"
 )
 
 const describeHelp = `Usage: edgewise describe MODEL.toml [options]
 
-Print the properties of a model at its start values: stationary law, edge
-currents, fundamental cycles with their affinities (k_BT), and the entropy
-production rate (k_B per unit time).
+Print a model and its properties at its start values: parameters (free,
+fixed or solved from an affinity constraint, with bounds), labels with
+their detection probabilities, the affinity constraints, the stationary
+law, edge currents, fundamental cycles with their affinities (k_BT), and
+the entropy production rate (k_B per unit time).
 
 Example:
   edgewise describe testdata/ring3.toml --format markdown
@@ -23,7 +26,7 @@ Options:
 
 func cmdDescribe(args []string, stdout, stderr io.Writer) int {
 	fs := newFlags("describe", describeHelp, args, stdout, stderr)
-	format := fs.StringP("format", "f", "table", "output format: table, markdown, csv or json")
+	format := fs.StringP("format", "f", "table", "output format: "+formats)
 	if code := parseFlags(fs, args); code >= 0 {
 		return code
 	}
@@ -31,8 +34,12 @@ func cmdDescribe(args []string, stdout, stderr io.Writer) int {
 		fs.Usage()
 		return 2
 	}
+	if !validFormat(*format) {
+		fmt.Fprintf(stderr, "edgewise: unknown format %q (want %s)\n", *format, formats)
+		return 2
+	}
 	path := fs.Arg(0)
-	src, net, err := loadModel(path)
+	src, m, net, err := loadModel(path)
 	if err != nil {
 		fmt.Fprintf(stderr, "edgewise: %v\n", err)
 		return 1
@@ -69,7 +76,7 @@ func cmdDescribe(args []string, stdout, stderr io.Writer) int {
 		{"entropy production sigma (k_B/time)", g(sigma)},
 		{"detailed balance", fmt.Sprintf("%v (max |cycle affinity| %s)", db, g(worst))},
 	}}
-	r.Tables = []table{st, et, ct, sum}
+	r.Tables = append(modelTables(m), st, et, ct, sum)
 	if math.IsInf(sigma, 1) {
 		r.Notes = append(r.Notes, "a one-way edge carries current: every affinity through it is infinite")
 	}
@@ -78,4 +85,53 @@ func cmdDescribe(args []string, stdout, stderr io.Writer) int {
 		return 2
 	}
 	return 0
+}
+
+// modelTables shows a model's parameters, labels and affinity constraints.
+func modelTables(m *models.Model) []table {
+	g := func(x float64) string { return strconv.FormatFloat(x, 'g', 6, 64) }
+	pt := table{Title: "Parameters (rates in 1/time)", Columns: []string{"name", "kind", "value", "status", "lower", "upper"}}
+	for _, p := range m.Params {
+		kind, status := "rate", "free"
+		if p.Kind == models.DetectParam {
+			kind = "detection"
+		}
+		if p.Fixed {
+			status = "fixed"
+		}
+		pt.Rows = append(pt.Rows, []string{p.Name, kind, g(p.Value), status, g(p.Lower), g(p.Upper)})
+	}
+	vals, err := m.Values(m.Start())
+	for i, a := range m.Affinities {
+		v := "?"
+		if err == nil {
+			v = g(vals[a.Solve])
+		}
+		pt.Rows = append(pt.Rows, []string{a.Solve, "rate", v, fmt.Sprintf("solved (constraint %d)", i+1), "", ""})
+	}
+	lt := table{Title: "Labels", Columns: []string{"label", "detection", "transitions"}}
+	for _, l := range m.Labels {
+		d := g(l.Detect)
+		if l.Param != "" {
+			d = "parameter " + l.Param
+		}
+		var on []string
+		for _, e := range m.Edges {
+			for dir := 0; dir < 2; dir++ {
+				if e.Labels[dir] == l.Name {
+					on = append(on, e.Between[dir]+"->"+e.Between[1-dir])
+				}
+			}
+		}
+		lt.Rows = append(lt.Rows, []string{l.Name, d, strings.Join(on, ", ")})
+	}
+	tables := []table{pt, lt}
+	if len(m.Affinities) > 0 {
+		at := table{Title: "Affinity constraints", Columns: []string{"#", "cycle", "affinity (k_BT)", "solved rate"}}
+		for i, a := range m.Affinities {
+			at.Rows = append(at.Rows, []string{strconv.Itoa(i + 1), strings.Join(a.Cycle, "-"), g(a.Value), a.Solve})
+		}
+		tables = append(tables, at)
+	}
+	return tables
 }

@@ -91,18 +91,18 @@ func parseFlags(fs *pflag.FlagSet, args []string) int {
 
 // loadModel reads and parses a model spec and builds its network at the
 // start values. src is returned for the checksum stamped on outputs.
-func loadModel(path string) ([]byte, *models.Network, error) {
+func loadModel(path string) ([]byte, *models.Model, *models.Network, error) {
 	src, err := os.ReadFile(path)
 	if err != nil {
-		return nil, nil, err
+		return nil, nil, nil, err
 	}
 	m, err := models.Parse(bytes.NewReader(src), path)
 	if err != nil {
-		return nil, nil, err
+		return nil, nil, nil, err
 	}
 	net, err := m.Network(m.Start())
 	if err != nil {
-		return nil, nil, err
+		return nil, nil, nil, err
 	}
-	return src, net, nil
+	return src, m, net, nil
 }

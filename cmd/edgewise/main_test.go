@@ -25,7 +25,7 @@ func TestRunExitCodes(t *testing.T) {
 // ln(3*2*1.5/(0.5*0.4*0.6)) = 4.31749 (cycle affinity definition,
 // Schnakenberg, Rev. Mod. Phys. 48, 571 (1976)), in every format.
 func TestDescribeRing3(t *testing.T) {
-	for _, f := range []string{"table", "markdown", "csv", "json"} {
+	for _, f := range []string{"table", "markdown", "latex", "csv", "json"} {
 		var out, errb bytes.Buffer
 		if code := run([]string{"describe", "../../testdata/ring3.toml", "--format", f}, &out, &errb); code != 0 {
 			t.Fatalf("%s: code %d: %s", f, code, errb.String())
@@ -43,6 +43,32 @@ func TestDescribeRing3(t *testing.T) {
 	}
 	if code := run([]string{"describe", "--help"}, &out, &errb); code != 0 || !strings.Contains(out.String(), "Example:") {
 		t.Errorf("help: code %d", code)
+	}
+}
+
+// TestDescribeConstraintsAndLatex: a spec with two affinity constraints
+// shows the solved rates and the cycles with exactly the imposed
+// affinities; latex output is a booktabs table with escaped specials.
+func TestDescribeConstraintsAndLatex(t *testing.T) {
+	var out, errb bytes.Buffer
+	if code := run([]string{"describe", "../../testdata/offedge.toml", "-f", "csv"}, &out, &errb); code != 0 {
+		t.Fatalf("code %d: %s", code, errb.String())
+	}
+	for _, want := range []string{"kbo,rate,0.362438,solved (constraint 1)", "1,Open-Shut-Bound-Open,1,kbo", "Shut-Bound-Open-Shut,1,", "Bound-Charged-Open-Bound,4,"} {
+		if !strings.Contains(out.String(), want) {
+			t.Errorf("missing %q in\n%s", want, out.String())
+		}
+	}
+	out.Reset()
+	if code := run([]string{"describe", "../../testdata/ring3.toml", "-f", "latex"}, &out, &errb); code != 0 {
+		t.Fatalf("code %d: %s", code, errb.String())
+	}
+	s := out.String()
+	if strings.Count(s, "\\toprule") != strings.Count(s, "\\bottomrule") || !strings.Contains(s, "affinity (k\\_BT)") || strings.Contains(s, "k_BT") {
+		t.Errorf("latex output malformed:\n%s", s)
+	}
+	if got := texEscape(`50% of a_b & {x} $1 #2 ~ ^ \`); got != `50\% of a\_b \& \{x\} \$1 \#2 \textasciitilde{} \textasciicircum{} \textbackslash{}` {
+		t.Errorf("texEscape: %s", got)
 	}
 }
 

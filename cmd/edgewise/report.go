@@ -7,6 +7,7 @@ import (
 	"encoding/json"
 	"fmt"
 	"io"
+	"strconv"
 	"strings"
 
 	"github.com/olekukonko/tablewriter"
@@ -26,6 +27,7 @@ type report struct {
 	Command  string   `json:"command"`
 	Input    string   `json:"input"`
 	Checksum string   `json:"input_sha256"`
+	Seed     string   `json:"seed,omitempty"` // random seed, when the command draws numbers
 	Tables   []table  `json:"tables"`
 	Notes    []string `json:"notes,omitempty"`
 }
@@ -35,7 +37,11 @@ func checksum(b []byte) string {
 	return hex.EncodeToString(s[:])
 }
 
-// write renders r in the given format: table (terminal), markdown, csv, json.
+// formats lists the output formats every report command accepts.
+const formats = "table, markdown, latex, csv or json"
+
+// write renders r in the given format: table (terminal), markdown, latex
+// (booktabs), csv, json.
 func (r *report) write(w io.Writer, format string) error {
 	switch format {
 	case "json":
@@ -65,6 +71,8 @@ func (r *report) write(w io.Writer, format string) error {
 			fmt.Fprintf(w, "> %s\n", n)
 		}
 		return nil
+	case "latex":
+		return r.writeLatex(w)
 	case "table", "":
 		for _, t := range r.Tables {
 			fmt.Fprintf(w, "%s\n", t.Title)
@@ -90,9 +98,77 @@ func (r *report) write(w io.Writer, format string) error {
 		fmt.Fprintf(w, "(%s)\n", r.stamp())
 		return nil
 	}
-	return fmt.Errorf("unknown format %q (want table, markdown, csv or json)", format)
+	return fmt.Errorf("unknown format %q (want %s)", format, formats)
+}
+
+// validFormat reports whether write accepts format.
+func validFormat(format string) bool {
+	switch format {
+	case "table", "", "markdown", "latex", "csv", "json":
+		return true
+	}
+	return false
 }
 
 func (r *report) stamp() string {
-	return fmt.Sprintf("%s %s; input %s sha256 %s", r.Tool, r.Command, r.Input, r.Checksum[:12])
+	s := fmt.Sprintf("%s %s; input %s sha256 %s", r.Tool, r.Command, r.Input, r.Checksum[:min(12, len(r.Checksum))])
+	if r.Seed != "" {
+		s += "; seed " + r.Seed
+	}
+	return s
+}
+
+// writeLatex renders each table as a booktabs table environment; numeric
+// columns are right-aligned, notes become a footnote-sized paragraph.
+func (r *report) writeLatex(w io.Writer) error {
+	fmt.Fprintf(w, "%% %s\n%% needs \\usepackage{booktabs}\n", r.stamp())
+	for _, t := range r.Tables {
+		align := make([]byte, len(t.Columns))
+		for j := range t.Columns {
+			align[j] = 'r'
+			for _, row := range t.Rows {
+				if j < len(row) && !isNumber(row[j]) {
+					align[j] = 'l'
+					break
+				}
+			}
+		}
+		fmt.Fprintf(w, "\n\\begin{table}[htbp]\n\\centering\n\\caption{%s}\n\\begin{tabular}{%s}\n\\toprule\n", texEscape(t.Title), align)
+		fmt.Fprintf(w, "%s \\\\\n\\midrule\n", texRow(t.Columns))
+		for _, row := range t.Rows {
+			fmt.Fprintf(w, "%s \\\\\n", texRow(row))
+		}
+		fmt.Fprint(w, "\\bottomrule\n\\end{tabular}\n\\end{table}\n")
+	}
+	if len(r.Notes) > 0 {
+		fmt.Fprint(w, "\n{\\footnotesize\n")
+		for _, n := range r.Notes {
+			fmt.Fprintf(w, "%s\\par\n", texEscape(n))
+		}
+		fmt.Fprint(w, "}\n")
+	}
+	return nil
+}
+
+func texRow(cells []string) string {
+	out := make([]string, len(cells))
+	for i, c := range cells {
+		out[i] = texEscape(c)
+	}
+	return strings.Join(out, " & ")
+}
+
+// texEscape escapes the characters that LaTeX treats specially.
+func texEscape(s string) string {
+	return strings.NewReplacer(
+		`\`, `\textbackslash{}`, "&", `\&`, "%", `\%`, "$", `\$`, "#", `\#`,
+		"_", `\_`, "{", `\{`, "}", `\}`, "~", `\textasciitilde{}`, "^", `\textasciicircum{}`,
+		"·", `$\cdot$`, "±", `$\pm$`, "->", `$\to$`,
+	).Replace(s)
+}
+
+// isNumber reports whether a table cell holds a plain number.
+func isNumber(s string) bool {
+	_, err := strconv.ParseFloat(strings.TrimSpace(s), 64)
+	return err == nil
 }

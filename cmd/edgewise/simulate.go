@@ -42,7 +42,7 @@ func cmdSimulate(args []string, stdout, stderr io.Writer) int {
 		return 2
 	}
 	path := fs.Arg(0)
-	src, net, err := loadModel(path)
+	src, _, net, err := loadModel(path)
 	if err != nil {
 		fmt.Fprintf(stderr, "edgewise: %v\n", err)
 		return 1
