@@ -27,6 +27,7 @@ type Simulator struct {
 	pi    []float64 // stationary law, for StartStationary
 	dead  float64   // dead time after each detected event
 	blind float64   // events at times <= blind are lost
+	frame float64   // frame length of the timestamps, 0 for exact times
 }
 
 type simJump struct {
@@ -85,6 +86,18 @@ func (s *Simulator) SetDeadTime(delta float64) error {
 		return fmt.Errorf("simulate: dead time %v: want a finite value >= 0", delta)
 	}
 	s.dead = delta
+	return nil
+}
+
+// SetFrame makes the recorded timestamps frame-limited: each event is
+// stamped with the start of the frame it falls in, floor(t/frame)*frame,
+// as on a camera that reads out once per frame. Zero, the default, keeps
+// exact times. The dead time runs on the true event times.
+func (s *Simulator) SetFrame(frame float64) error {
+	if math.IsNaN(frame) || math.IsInf(frame, 0) || frame < 0 {
+		return fmt.Errorf("simulate: frame length %v: want a finite value >= 0", frame)
+	}
+	s.frame = frame
 	return nil
 }
 
@@ -151,7 +164,11 @@ func (s *Simulator) Visible(n int, dst []Event) ([]Event, int) {
 			continue
 		}
 		s.blind = s.time + s.dead
-		dst = append(dst, Event{Time: s.time, Label: j.label})
+		t := s.time
+		if s.frame > 0 {
+			t = math.Floor(t/s.frame) * s.frame
+		}
+		dst = append(dst, Event{Time: t, Label: j.label})
 		n--
 	}
 	return dst, jumps

@@ -156,6 +156,38 @@ func TestSimulatorDeadTime(t *testing.T) {
 		if s.SetDeadTime(bad) == nil {
 			t.Errorf("dead time %v accepted", bad)
 		}
+		if s.SetFrame(bad) == nil {
+			t.Errorf("frame %v accepted", bad)
+		}
+	}
+}
+
+// TestSimulatorFrame: frame-limited stamps are the exact times of the same
+// stream rounded down to a multiple of the frame (the camera model).
+func TestSimulatorFrame(t *testing.T) {
+	net := ring([]float64{2, 3, 1}, []float64{1, 1, 1})
+	net.Labels = []Label{{Name: "+", Detect: 1}, {Name: "-", Detect: 1}}
+	net.Edges[0].Label = [2]int{0, 1}
+	const frame = 0.25
+	exact, _ := NewSimulator(net, 5)
+	framed, _ := NewSimulator(net, 5)
+	if err := framed.SetFrame(frame); err != nil {
+		t.Fatal(err)
+	}
+	a, _ := exact.Visible(5000, nil)
+	b, _ := framed.Visible(5000, nil)
+	repeats := 0
+	for i := range a {
+		k := math.Floor(a[i].Time / frame)
+		if b[i].Label != a[i].Label || b[i].Time != k*frame || b[i].Time > a[i].Time || a[i].Time-b[i].Time >= frame {
+			t.Fatalf("event %d: framed %+v, exact %+v", i, b[i], a[i])
+		}
+		if i > 0 && b[i].Time == b[i-1].Time {
+			repeats++
+		}
+	}
+	if repeats == 0 {
+		t.Fatal("no two events shared a frame: test too weak")
 	}
 }
 

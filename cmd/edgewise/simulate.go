@@ -18,7 +18,8 @@ from the stationary law, and write only the recorded visible events (each
 kept with its label's detection probability) as CSV with columns
 record,time,label. With --dead-time, events within that time after a
 recorded event are lost, as on an instrument that is blind after each
-detection. The same --seed gives byte-identical output.
+detection. With --frame, each time is the start of the camera frame the
+event fell in. The same --seed gives byte-identical output.
 
 Example:
   edgewise simulate testdata/ring3.toml --events 5000 --records 4 --seed 1 -o demo.csv
@@ -34,6 +35,7 @@ func cmdSimulate(args []string, stdout, stderr io.Writer) int {
 	out := fs.StringP("output", "o", "-", "output file (- for standard output)")
 	force := fs.Bool("force", false, "overwrite an existing output file")
 	dead := fs.Float64("dead-time", 0, "instrument dead time after each recorded event (time units)")
+	frame := fs.Float64("frame", 0, "frame length: stamp each event with the start of its frame (time units; 0 = exact times)")
 	if code := parseFlags(fs, args); code >= 0 {
 		return code
 	}
@@ -56,9 +58,13 @@ func cmdSimulate(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "edgewise: --dead-time: %v\n", err)
 		return 2
 	}
+	if err := sim.SetFrame(*frame); err != nil {
+		fmt.Fprintf(stderr, "edgewise: --frame: %v\n", err)
+		return 2
+	}
 	gen := func(w io.Writer) error {
 		bw := bufio.NewWriterSize(w, 1<<16)
-		fmt.Fprintf(bw, "# edgewise %s simulate %s sha256 %s seed %d events %d records %d dead-time %g\n", version, filepath.Base(path), checksum(src)[:12], *seed, *events, *records, *dead)
+		fmt.Fprintf(bw, "# edgewise %s simulate %s sha256 %s seed %d events %d records %d dead-time %g frame %g\n", version, filepath.Base(path), checksum(src)[:12], *seed, *events, *records, *dead, *frame)
 		fmt.Fprintln(bw, "record,time,label")
 		buf := make([]models.Event, 0, 4096)
 		line := make([]byte, 0, 64)
