@@ -26,6 +26,9 @@ type Kernels struct {
 	D      []*mat.Dense // D[l], visible part of label l
 	// Edges lists, per label, the directed transitions carrying it.
 	Edges [][]models.Transition
+
+	net   *models.Network     // copy of the network, for the stationary law
+	trans []models.Transition // every directed transition, for gradients
 }
 
 // NewKernels builds the generator split of net. The network must be valid
@@ -43,6 +46,8 @@ func NewKernels(net *models.Network) (*Kernels, error) {
 		Edges:  make([][]models.Transition, len(net.Labels)),
 		Labels: make([]string, len(net.Labels)),
 		Detect: make([]float64, len(net.Labels)),
+		net:    net.Clone(),
+		trans:  net.Transitions(),
 	}
 	for l, lab := range net.Labels {
 		k.Labels[l] = lab.Name

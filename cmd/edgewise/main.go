@@ -36,6 +36,10 @@ func run(args []string, stdout, stderr io.Writer) int {
 		return cmdDescribe(args[1:], stdout, stderr)
 	case "simulate":
 		return cmdSimulate(args[1:], stdout, stderr)
+	case "inspect":
+		return cmdInspect(args[1:], stdout, stderr)
+	case "fluct":
+		return cmdFluct(args[1:], stdout, stderr)
 	case "help", "-h", "--help":
 		usage(stdout)
 		return 0
@@ -55,6 +59,8 @@ Usage:
 Commands:
   describe  properties of a model: stationary law, currents, cycles, sigma
   simulate  exact simulation of a model's visible events, as CSV records
+  inspect   model-free statistics and checks of records: rates, P(l'|l), F, tests
+  fluct     count-stopped fluctuation test and entropy production bounds from records
   version   print the tool version
   help      show this help
 

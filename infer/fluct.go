@@ -1,0 +1,581 @@
+package infer
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"math/rand/v2"
+
+	"edgewise/likelihood"
+
+	"gonum.org/v1/gonum/stat"
+)
+
+// EdgeLabels names the two labels of one visible edge: Forward is counted
+// +1 in the current c = n_+ - n_-, Backward (the reverse transition of the
+// same edge) -1. The zero value means "+" and "-".
+type EdgeLabels struct {
+	Forward  string
+	Backward string
+}
+
+// resolve finds the label indices of e in d and checks that every event of
+// d carries one of them: the fluctuation test and the bounds are statements
+// about a single visible edge.
+func (e EdgeLabels) resolve(d *likelihood.Data) (fw, bw uint8, err error) {
+	if d == nil || len(d.Records) == 0 {
+		return 0, 0, errors.New("no records")
+	}
+	f, b := e.Forward, e.Backward
+	if f == "" && b == "" {
+		f, b = "+", "-"
+	}
+	if f == b {
+		return 0, 0, fmt.Errorf("forward and backward labels are both %q", f)
+	}
+	fi, bi := -1, -1
+	for i, l := range d.Labels {
+		switch l {
+		case f:
+			fi = i
+		case b:
+			bi = i
+		}
+	}
+	if fi < 0 || bi < 0 || fi > math.MaxUint8 || bi > math.MaxUint8 {
+		return 0, 0, fmt.Errorf("labels %q and %q of one visible edge are not both in the data's labels %q", f, b, d.Labels)
+	}
+	fw, bw = uint8(fi), uint8(bi)
+	total := 0
+	for r := range d.Records {
+		rec := &d.Records[r]
+		if len(rec.Label) != len(rec.Time) {
+			return 0, 0, fmt.Errorf("record %d (%q): %d labels for %d times", r+1, rec.ID, len(rec.Label), len(rec.Time))
+		}
+		for k, l := range rec.Label {
+			if l != fw && l != bw {
+				name := "?"
+				if int(l) < len(d.Labels) {
+					name = d.Labels[l]
+				}
+				return 0, 0, fmt.Errorf("record %d (%q), event %d: label %q is neither %q nor %q; this test needs one visible edge", r+1, rec.ID, k+1, name, f, b)
+			}
+		}
+		total += len(rec.Time)
+	}
+	if total == 0 {
+		return 0, 0, errors.New("no events")
+	}
+	return fw, bw, nil
+}
+
+// FluctOptions sets up FluctuationTest.
+type FluctOptions struct {
+	Labels EdgeLabels
+	// Level is the confidence level of every interval, default 0.95.
+	Level float64
+	// Boot is the number of block-bootstrap replicates for the z-score of
+	// slope - F, default 200.
+	Boot int
+	// Seed fixes the bootstrap: the same data, options and seed give the
+	// same numbers.
+	Seed uint64
+	// FixedTime adds the contrast at a fixed clock time: windows of
+	// duration T = n * (observed time) / (number of events).
+	FixedTime bool
+	// BlockEvents is the least number of events in a bootstrap block,
+	// default 500. Blocks are whole windows of one record.
+	BlockEvents int
+}
+
+func (o *FluctOptions) defaults() error {
+	if o.Level == 0 {
+		o.Level = 0.95
+	}
+	if !(o.Level > 0 && o.Level < 1) {
+		return fmt.Errorf("confidence level %v is not in (0, 1)", o.Level)
+	}
+	if o.Boot == 0 {
+		o.Boot = 200
+	}
+	if o.Boot < 0 {
+		return fmt.Errorf("bootstrap replicates %d < 0", o.Boot)
+	}
+	if o.BlockEvents == 0 {
+		o.BlockEvents = 500
+	}
+	if o.BlockEvents < 1 {
+		return fmt.Errorf("block length %d < 1", o.BlockEvents)
+	}
+	return nil
+}
+
+// maxBlocks caps the number of bootstrap blocks, so that a replicate costs
+// at most maxBlocks*(2n+1) additions whatever the data size.
+const maxBlocks = 1000
+
+// minBootBlocks is the least number of blocks for a block bootstrap; with
+// fewer the z-score falls back to both standard errors taken as
+// independent (conservative, see Comparison).
+const minBootBlocks = 10
+
+// Fluctuation is the result of the count-stopped fluctuation test for one
+// window length n (visible transitions per window).
+type Fluctuation struct {
+	N int // events per window
+	// F is the data's effective affinity ln[P(+|+)/P(-|-)] (k_BT) from the
+	// pair counts of consecutive events within records (EffectiveAffinity).
+	F Estimate
+	// Raw uses every window; PostSelected only those whose first label is
+	// the reverse of the last, for which ln[P_n(c)/P_n(-c)] = F c exactly
+	// (single visible edge, first-order Markov labels).
+	Raw, PostSelected Symmetry
+	// FixedTime is the contrast with windows of a fixed duration, nil unless
+	// asked for.
+	FixedTime *Symmetry
+}
+
+// Symmetry is one fluctuation plot: the histogram of the window current c
+// and the fit ln[P(c)/P(-c)] = s c.
+type Symmetry struct {
+	Kind     string  // "count-stopped", "post-selected" or "fixed-time"
+	Windows  int     // windows in the histogram
+	Duration float64 // window duration T for fixed-time windows (time units), else 0
+	// Count[c+Offset] is the number of windows with current c.
+	Count  []int64
+	Offset int
+	// Points are the log-ratios for c > 0 with N(c) > 0 and N(-c) > 0.
+	Points []RatioPoint
+	// Skipped counts the c > 0 with N(c) + N(-c) > 0 but one of the two
+	// zero: their log-ratio is infinite and they are left out of the fit.
+	Skipped int
+	// Slope s of the weighted least-squares line through the origin,
+	// s = sum w c y / sum w c^2 with w = 1/Var(y), SE = (sum w c^2)^(-1/2).
+	Slope Estimate
+	// Chi2 = sum w (y - s c)^2 on DF = len(Points) - 1 degrees of freedom,
+	// and its upper-tail probability LinearP: a small LinearP says the
+	// log-ratio is not linear in c.
+	Chi2    float64
+	DF      int
+	LinearP float64
+	// Versus is the comparison of the slope with the data's F.
+	Versus Comparison
+}
+
+// RatioPoint is one log-ratio of a fluctuation plot.
+type RatioPoint struct {
+	C           int     // current c > 0
+	Plus, Minus int64   // windows with current c and -c
+	LogRatio    float64 // y = ln(Plus/Minus)
+	SE          float64 // delta method: sqrt(1/Plus + 1/Minus)
+	// Lo, Hi: exact Clopper-Pearson interval of p = Plus/(Plus+Minus)
+	// mapped through the logit ln(p/(1-p)).
+	Lo, Hi float64
+}
+
+// Comparison is a slope set against F.
+type Comparison struct {
+	// Diff is slope - F with its SE and interval from a block bootstrap:
+	// slope and F come from the same events and are positively
+	// correlated, so their SEs do not add in quadrature.
+	Diff Estimate
+	// Corr is the bootstrap correlation of slope and F (NaN without a
+	// bootstrap).
+	Corr float64
+	// Z = Diff.Value / Diff.SE.
+	Z float64
+	// Agrees reports |Z| <= the normal quantile of the confidence level.
+	Agrees bool
+	// Blocks is the number of bootstrap blocks, Failed the replicates with
+	// an undefined slope or F (dropped).
+	Blocks, Replicates, Failed int
+	Verdict                    string
+}
+
+// FluctuationTest runs the count-stopped fluctuation test for each window
+// length in ns on a data set of one visible edge.
+//
+// Each record is cut into non-overlapping windows of n consecutive visible
+// transitions (never across records; the tail shorter than n is unused).
+// Non-overlapping windows share at most one boundary pair of events, so for
+// a Markov label sequence their currents are nearly independent, and the
+// counts N(c) are close to multinomial: given N(c) + N(-c) = m, N(c) is
+// binomial, which gives the exact interval of each log-ratio.
+//
+// The test assumes stationarity: a drifting record mixes windows with
+// different laws. A slope consistent with F does not prove a model.
+func FluctuationTest(d *likelihood.Data, ns []int, opt FluctOptions) ([]Fluctuation, error) {
+	if err := opt.defaults(); err != nil {
+		return nil, fmt.Errorf("fluctuation test: %w", err)
+	}
+	fw, bw, err := opt.Labels.resolve(d)
+	if err != nil {
+		return nil, fmt.Errorf("fluctuation test: %w", err)
+	}
+	if len(ns) == 0 {
+		return nil, errors.New("fluctuation test: no window length")
+	}
+	fhat := EffectiveAffinity(d, fw, bw, AffinityOptions{Level: opt.Level})
+	out := make([]Fluctuation, 0, len(ns))
+	for _, n := range ns {
+		if n < 1 {
+			return nil, fmt.Errorf("fluctuation test: window length %d < 1", n)
+		}
+		raw, post := fluctCountBlocks(d, fw, n, opt.BlockEvents)
+		res := Fluctuation{N: n, F: fhat}
+		res.Raw = fluctSymmetry("count-stopped", raw, n, 0, opt, 1)
+		res.PostSelected = fluctSymmetry("post-selected", post, n, 0, opt, 2)
+		if res.Raw.Windows == 0 {
+			return nil, fmt.Errorf("fluctuation test: no record has %d events", n)
+		}
+		if opt.FixedTime {
+			blocks, dur, cmax := fluctTimeBlocks(d, fw, n, opt.BlockEvents)
+			ft := fluctSymmetry("fixed-time", blocks, cmax, dur, opt, 3)
+			res.FixedTime = &ft
+		}
+		out = append(out, res)
+	}
+	return out, nil
+}
+
+// fluctSide is 0 for the forward label, 1 otherwise.
+func fluctSide(l, fw uint8) int {
+	if l == fw {
+		return 0
+	}
+	return 1
+}
+
+// fluctAffinity returns F = ln[(N++/N+.)/(N--/N-.)] and the delta
+// method variance 1/N++ - 1/N+. + 1/N-- - 1/N-. (design section 7). F is
+// +Inf (-Inf) when N-- (N++) is zero and NaN when both are.
+func fluctAffinity(n [2][2]int64) (f, variance float64) {
+	pp, mm := float64(n[0][0]), float64(n[1][1])
+	p, m := pp+float64(n[0][1]), mm+float64(n[1][0])
+	if pp == 0 || mm == 0 {
+		switch {
+		case pp == 0 && mm == 0:
+			return math.NaN(), math.NaN()
+		case mm == 0:
+			return math.Inf(1), math.NaN()
+		}
+		return math.Inf(-1), math.NaN()
+	}
+	return math.Log(pp/p) - math.Log(mm/m), 1/pp - 1/p + 1/mm - 1/m
+}
+
+// fluctBlock is a stretch of one record used as a bootstrap unit: the
+// histogram of window currents of the windows inside it and the pair
+// counts of consecutive events whose first event lies inside it.
+type fluctBlock struct {
+	count []int64 // count[c+offset]
+	pairs [2][2]int64
+}
+
+// countBlocks cuts each record into windows of n events and groups them into
+// blocks of at least minEvents events (at most maxBlocks blocks overall),
+// returning the raw and post-selected blocks. The two share pair counts.
+func fluctCountBlocks(d *likelihood.Data, fw uint8, n, minEvents int) (raw, post []fluctBlock) {
+	total := 0
+	for r := range d.Records {
+		total += len(d.Records[r].Label) / n
+	}
+	per := max(1, (minEvents+n-1)/n, (total+maxBlocks-1)/maxBlocks) // windows per block
+	width := 2*n + 1
+	for r := range d.Records {
+		lab := d.Records[r].Label
+		nw := len(lab) / n
+		nb := max(1, (nw+per-1)/per)
+		for b := 0; b < nb; b++ {
+			rb := fluctBlock{count: make([]int64, width)}
+			pb := fluctBlock{count: make([]int64, width)}
+			w0, w1 := b*per, min(nw, (b+1)*per)
+			for w := w0; w < w1; w++ {
+				win := lab[w*n : (w+1)*n]
+				c := 0
+				for _, l := range win {
+					if l == fw {
+						c++
+					} else {
+						c--
+					}
+				}
+				rb.count[c+n]++
+				if (win[0] == fw) != (win[n-1] == fw) {
+					pb.count[c+n]++
+				}
+			}
+			// Pairs (k-1, k) with k in this block's events; the last block
+			// of a record takes the tail too.
+			k0, k1 := w0*n, w1*n
+			if b == nb-1 {
+				k1 = len(lab)
+			}
+			for k := max(k0, 1); k < k1; k++ {
+				rb.pairs[fluctSide(lab[k-1], fw)][fluctSide(lab[k], fw)]++
+			}
+			pb.pairs = rb.pairs
+			raw = append(raw, rb)
+			post = append(post, pb)
+		}
+	}
+	return raw, post
+}
+
+// recordSpan returns the observed span of a record: from its first event to
+// its End when known, else to its last event.
+func fluctSpan(rec *likelihood.Record) (t0, t1 float64) {
+	if len(rec.Time) == 0 {
+		return 0, 0
+	}
+	t0, t1 = rec.Time[0], rec.Time[len(rec.Time)-1]
+	if !math.IsNaN(rec.End) && rec.End > t1 {
+		t1 = rec.End
+	}
+	return t0, t1
+}
+
+// observedTime returns the summed span of all records and the number of
+// events after the first of each record (the events that fall inside the
+// spans).
+func fluctObserved(d *likelihood.Data) (span float64, events int) {
+	for r := range d.Records {
+		rec := &d.Records[r]
+		t0, t1 := fluctSpan(rec)
+		span += t1 - t0
+		events += max(0, len(rec.Time)-1)
+	}
+	return span, events
+}
+
+// timeBlocks cuts each record's span, from its first event, into windows of
+// duration T = n * span / events (so that a window holds n events on
+// average; the first event of each record only marks the origin) and
+// groups them into blocks of at least minEvents expected events. It returns
+// the blocks, T and the largest |c| seen.
+func fluctTimeBlocks(d *likelihood.Data, fw uint8, n, minEvents int) ([]fluctBlock, float64, int) {
+	span, events := fluctObserved(d)
+	if events == 0 || !(span > 0) {
+		return nil, 0, 0
+	}
+	T := float64(n) * span / float64(events)
+	total := int(span / T)
+	per := max(1, (minEvents+n-1)/n, (total+maxBlocks-1)/maxBlocks)
+	type win struct{ b, c int }
+	var wins []win
+	var pairsBy [][2][2]int64
+	cmax := 0
+	nblock := 0
+	for r := range d.Records {
+		rec := &d.Records[r]
+		t0, t1 := fluctSpan(rec)
+		nw := int((t1 - t0) / T)
+		nb := max(1, (nw+per-1)/per)
+		base := nblock
+		nblock += nb
+		for range nb {
+			pairsBy = append(pairsBy, [2][2]int64{})
+		}
+		k := 1
+		for w := 0; w < nw; w++ {
+			end := t0 + float64(w+1)*T
+			c := 0
+			for ; k < len(rec.Time) && rec.Time[k] <= end; k++ {
+				if rec.Label[k] == fw {
+					c++
+				} else {
+					c--
+				}
+			}
+			wins = append(wins, win{base + w/per, c})
+			cmax = max(cmax, c, -c)
+		}
+		for k := 1; k < len(rec.Time); k++ {
+			b := min(nb-1, int((rec.Time[k-1]-t0)/(T*float64(per))))
+			pairsBy[base+b][fluctSide(rec.Label[k-1], fw)][fluctSide(rec.Label[k], fw)]++
+		}
+	}
+	blocks := make([]fluctBlock, nblock)
+	for i := range blocks {
+		blocks[i] = fluctBlock{count: make([]int64, 2*cmax+1), pairs: pairsBy[i]}
+	}
+	for _, w := range wins {
+		blocks[w.b].count[w.c+cmax]++
+	}
+	return blocks, T, cmax
+}
+
+// symmetryFromBlocks sums the blocks, fits the fluctuation line and
+// compares it with F by a block bootstrap seeded by opt.Seed and stream.
+func fluctSymmetry(kind string, blocks []fluctBlock, offset int, dur float64, opt FluctOptions, stream uint64) Symmetry {
+	s := Symmetry{Kind: kind, Duration: dur, Offset: offset, Count: make([]int64, 2*offset+1)}
+	var pairs [2][2]int64
+	for _, b := range blocks {
+		for i, v := range b.count {
+			s.Count[i] += v
+		}
+		addPairCounts(&pairs, b.pairs)
+	}
+	for _, v := range s.Count {
+		s.Windows += int(v)
+	}
+	s.Points, s.Skipped = fluctLogRatios(s.Count, offset, opt.Level)
+	slope, se := fluctFitSlope(s.Points)
+	z := zFor(opt.Level)
+	s.Slope = Estimate{Value: slope, SE: se, Lo: slope - z*se, Hi: slope + z*se, Method: "weighted least squares through the origin, w = 1/Var(log-ratio)"}
+	if s.Skipped > 0 {
+		s.Slope.Note = fmt.Sprintf("%d values of c with a zero count on one side left out", s.Skipped)
+	}
+	if len(s.Points) == 0 {
+		s.Slope.Note = "no c > 0 with both N(c) and N(-c) > 0: slope undefined"
+	}
+	for _, p := range s.Points {
+		r := (p.LogRatio - slope*float64(p.C)) / p.SE
+		s.Chi2 += r * r
+	}
+	s.DF = len(s.Points) - 1
+	s.LinearP = math.NaN()
+	if s.DF > 0 {
+		s.LinearP = chiSquareSF(s.Chi2, s.DF)
+	}
+	s.Versus = fluctCompare(blocks, slope, se, pairs, opt, stream, offset)
+	return s
+}
+
+func addPairCounts(dst *[2][2]int64, p [2][2]int64) {
+	for a := 0; a < 2; a++ {
+		for b := 0; b < 2; b++ {
+			dst[a][b] += p[a][b]
+		}
+	}
+}
+
+// logRatios returns the log-ratio points of a histogram and the number of
+// c > 0 left out because one side has no window.
+func fluctLogRatios(count []int64, offset int, level float64) ([]RatioPoint, int) {
+	var pts []RatioPoint
+	skipped := 0
+	for c := 1; c <= offset; c++ {
+		k, j := count[offset+c], count[offset-c]
+		if k == 0 || j == 0 {
+			if k+j > 0 {
+				skipped++
+			}
+			continue
+		}
+		kf, jf := float64(k), float64(j)
+		lo, hi := ClopperPearson(int(k), int(k+j), level)
+		pts = append(pts, RatioPoint{
+			C: c, Plus: k, Minus: j,
+			LogRatio: math.Log(kf / jf),
+			SE:       math.Sqrt(1/kf + 1/jf),
+			Lo:       math.Log(lo / (1 - lo)),
+			Hi:       math.Log(hi / (1 - hi)),
+		})
+	}
+	return pts, skipped
+}
+
+// fitSlope is the weighted least-squares slope through the origin of the
+// points and its SE; NaN when there is no point.
+func fluctFitSlope(pts []RatioPoint) (slope, se float64) {
+	var sxy, sxx float64
+	for _, p := range pts {
+		w := 1 / (p.SE * p.SE)
+		c := float64(p.C)
+		sxy += w * c * p.LogRatio
+		sxx += w * c * c
+	}
+	if sxx == 0 {
+		return math.NaN(), math.NaN()
+	}
+	return sxy / sxx, 1 / math.Sqrt(sxx)
+}
+
+// slopeOfCounts is fitSlope of a histogram, without intervals (bootstrap).
+func fluctSlopeOfCounts(count []int64, offset int) float64 {
+	var sxy, sxx float64
+	for c := 1; c <= offset; c++ {
+		k, j := count[offset+c], count[offset-c]
+		if k == 0 || j == 0 {
+			continue
+		}
+		kf, jf := float64(k), float64(j)
+		w := kf * jf / (kf + jf)
+		cf := float64(c)
+		sxy += w * cf * math.Log(kf/jf)
+		sxx += w * cf * cf
+	}
+	if sxx == 0 {
+		return math.NaN()
+	}
+	return sxy / sxx
+}
+
+// compare sets the slope against F. With at least minBootBlocks blocks and
+// opt.Boot > 0 the SE of slope - F comes from a block bootstrap (blocks
+// drawn with replacement, both statistics recomputed from the same draw),
+// which keeps their correlation; otherwise the two SEs are added in
+// quadrature as if independent, which overstates the SE of the difference
+// because the correlation is positive, so |z| is then conservative.
+func fluctCompare(blocks []fluctBlock, slope, seSlope float64, pairs [2][2]int64, opt FluctOptions, stream uint64, offset int) Comparison {
+	f, vf := fluctAffinity(pairs)
+	cmp := Comparison{Blocks: len(blocks), Corr: math.NaN()}
+	d := slope - f
+	zq := zFor(opt.Level)
+	cmp.Diff = Estimate{Value: d, SE: math.NaN(), Lo: math.NaN(), Hi: math.NaN()}
+	if math.IsNaN(d) || math.IsInf(d, 0) {
+		cmp.Z = math.NaN()
+		cmp.Diff.Note = "slope or F undefined"
+		cmp.Verdict = "no verdict: slope or F undefined"
+		return cmp
+	}
+	if len(blocks) >= minBootBlocks && opt.Boot > 0 {
+		rng := rand.New(rand.NewPCG(opt.Seed, 0x5eed0f1c7+stream))
+		sum := make([]int64, len(blocks[0].count))
+		var ds, ss, fs []float64
+		for range opt.Boot {
+			clear(sum)
+			var p [2][2]int64
+			for range blocks {
+				b := &blocks[rng.IntN(len(blocks))]
+				for i, v := range b.count {
+					sum[i] += v
+				}
+				addPairCounts(&p, b.pairs)
+			}
+			s := fluctSlopeOfCounts(sum, offset)
+			fb, _ := fluctAffinity(p)
+			if math.IsNaN(s) || math.IsNaN(fb) || math.IsInf(fb, 0) {
+				cmp.Failed++
+				continue
+			}
+			ds = append(ds, s-fb)
+			ss = append(ss, s)
+			fs = append(fs, fb)
+		}
+		cmp.Replicates = opt.Boot
+		if len(ds) >= 2 {
+			cmp.Diff.SE = stat.StdDev(ds, nil)
+			cmp.Corr = stat.Correlation(ss, fs, nil)
+			cmp.Diff.Method = fmt.Sprintf("block bootstrap, %d blocks, %d replicates", len(blocks), len(ds))
+		}
+	}
+	if math.IsNaN(cmp.Diff.SE) {
+		cmp.Diff.SE = math.Sqrt(seSlope*seSlope + vf)
+		cmp.Diff.Method = "both SEs in quadrature (too few blocks for a bootstrap; conservative)"
+	}
+	if cmp.Failed > 0 {
+		cmp.Diff.Note = fmt.Sprintf("%d of %d bootstrap replicates had an undefined slope or F and were dropped", cmp.Failed, cmp.Replicates)
+	}
+	cmp.Diff.Lo, cmp.Diff.Hi = d-zq*cmp.Diff.SE, d+zq*cmp.Diff.SE
+	cmp.Z = d / cmp.Diff.SE
+	pct := fmt.Sprintf("%g%%", 100*opt.Level)
+	cmp.Agrees = math.Abs(cmp.Z) <= zq
+	if cmp.Agrees {
+		cmp.Verdict = "slope agrees with F at " + pct
+	} else {
+		cmp.Verdict = fmt.Sprintf("slope differs from F at %s (z = %.2f)", pct, cmp.Z)
+	}
+	return cmp
+}

@@ -1,0 +1,290 @@
+package likelihood
+
+import (
+	"errors"
+	"fmt"
+	"math"
+)
+
+// CountDist is the law of an integer-valued current c, conditioned on an
+// event of probability Weight.
+type CountDist struct {
+	C      []int     // values of c, consecutive and increasing
+	P      []float64 // P[i] = Pr(c = C[i] | event); sums to 1 when Weight > 0, else all 0
+	Weight float64   // probability of the conditioning event; 1 when unconditioned
+}
+
+// Prob returns Pr(c | event), 0 outside the support.
+func (d CountDist) Prob(c int) float64 {
+	if len(d.C) == 0 {
+		return 0
+	}
+	i := c - d.C[0]
+	if i < 0 || i >= len(d.P) {
+		return 0
+	}
+	return d.P[i]
+}
+
+// Mean returns the mean of c.
+func (d CountDist) Mean() float64 {
+	m := 0.0
+	for i, c := range d.C {
+		m += float64(c) * d.P[i]
+	}
+	return m
+}
+
+// Var returns the variance of c.
+func (d CountDist) Var() float64 {
+	m := d.Mean()
+	v := 0.0
+	for i, c := range d.C {
+		x := float64(c) - m
+		v += x * x * d.P[i]
+	}
+	return v
+}
+
+// LogRatio returns, for each c > 0 with both Pr(c) and Pr(-c) above floor,
+// the fluctuation log-ratio ln[Pr(c) / Pr(-c)].
+func (d CountDist) LogRatio(floor float64) (c []int, r []float64) {
+	for i, x := range d.C {
+		if x <= 0 {
+			continue
+		}
+		a, b := d.P[i], d.Prob(-x)
+		if a > floor && b > floor {
+			c = append(c, x)
+			r = append(r, math.Log(a)-math.Log(b))
+		}
+	}
+	return c, r
+}
+
+// CountStopped returns the exact law of the current c = sum_k q_{l_k} over
+// a window of n consecutive detected events l_1, ..., l_n of the stationary
+// label sequence. The window's first event is a stationary event: its label
+// and post-event state have the joint law phi M_l1 (phi the stationary
+// post-event law of the event before it); each later event follows with the
+// kernels M_l (see Predictor). So c counts all n events and the window spans
+// n - 1 gaps.
+//
+// With postSelect the law is conditioned on the first label being the
+// reverse of the last one (l_1 = Reverse(l_n)); Weight is then the
+// probability of that event. For a single visible edge (q = +1, -1) whose
+// label sequence is Markov (each label on one directed edge, any detection
+// probability and dead time), the post-selected law obeys
+// ln[P_n(c)/P_n(-c)] = F c exactly for every n, F = EffectiveAffinity.
+//
+// The computation is a dynamic programme over (post-event state, c) on the
+// states that can follow an event, with cost O(n * n(qmax - qmin) * nnz(M)).
+// n must be >= 1 (>= 2 with postSelect), len(q) the number of labels.
+func (p *Predictor) CountStopped(n int, q []int, postSelect bool) (CountDist, error) {
+	if err := p.checkCount(n, q); err != nil {
+		return CountDist{}, err
+	}
+	w := p.newWindow(q)
+	if !postSelect {
+		all := make([]int, 0, p.nl)
+		for l := 0; l < p.nl; l++ {
+			all = append(all, l)
+		}
+		return w.finish(w.run(n, all), n, all), nil
+	}
+	if n < 2 {
+		return CountDist{}, fmt.Errorf("likelihood: count-stopped: post-selection needs n >= 2, got %d", n)
+	}
+	acc := make([]float64, w.width(n))
+	found := false
+	for a := 0; a < p.nl; a++ {
+		b := p.rev[a]
+		if b < 0 {
+			continue
+		}
+		found = true
+		if p.r[a] == 0 {
+			continue
+		}
+		d := w.finish(w.run(n, []int{a}), n, []int{b})
+		for i := range acc {
+			acc[i] += d.P[i] * d.Weight
+		}
+	}
+	if !found {
+		return CountDist{}, errors.New("likelihood: count-stopped: post-selection needs a label whose reverse is also a label")
+	}
+	return obsNormalize(acc, n*w.qlo), nil
+}
+
+// CountStoppedEnds returns the count-stopped law of c split by the first
+// and last labels of the window: out[a][b] is the law of c given l_1 = a
+// and l_n = b, with Weight = Pr(l_1 = a, l_n = b). For a single visible
+// edge with a Markov label sequence the window and its time reverse give
+//
+//	ln[Pr(c, a, b) / Pr(-c, rev b, rev a)] = F (c - (s_a + s_b)/2) + ln(r_a / r_{rev b}),
+//
+// s = +-1 the sign of a label and r the stationary label law: the boundary
+// term that keeps the raw law from obeying ln[P_n(c)/P_n(-c)] = F c at
+// finite n. n must be >= 1.
+func (p *Predictor) CountStoppedEnds(n int, q []int) ([][]CountDist, error) {
+	if err := p.checkCount(n, q); err != nil {
+		return nil, err
+	}
+	w := p.newWindow(q)
+	out := make([][]CountDist, p.nl)
+	for a := 0; a < p.nl; a++ {
+		out[a] = make([]CountDist, p.nl)
+		st := w.run(n, []int{a})
+		for b := 0; b < p.nl; b++ {
+			out[a][b] = w.finish(st, n, []int{b})
+		}
+	}
+	return out, nil
+}
+
+func (p *Predictor) checkCount(n int, q []int) error {
+	if n < 1 {
+		return fmt.Errorf("likelihood: count-stopped: window of %d events, want >= 1", n)
+	}
+	if len(q) != p.nl {
+		return fmt.Errorf("likelihood: count-stopped: %d label weights for %d labels", len(q), p.nl)
+	}
+	lo, hi := 0, 0
+	for _, x := range q {
+		lo, hi = min(lo, x), max(hi, x)
+	}
+	if float64(n)*float64(hi-lo) > 1e7 {
+		return fmt.Errorf("likelihood: count-stopped: n = %d with weights in [%d, %d] gives more than 1e7 values of c", n, lo, hi)
+	}
+	return nil
+}
+
+// obsEntry is one non-zero entry of M_l restricted to the post-event states.
+type obsEntry struct {
+	i, j int
+	v    float64
+}
+
+// obsWindow holds M_l restricted to the states that can follow an event.
+type obsWindow struct {
+	p        *Predictor
+	q        []int
+	qlo, qhi int
+	ns       int          // number of post-event states
+	init     [][]float64  // per label: phi M_l on the post-event states
+	ent      [][]obsEntry // per label: non-zero entries of M_l
+	h        [][]float64  // per label: M_l 1 on the post-event states
+}
+
+func (p *Predictor) newWindow(q []int) *obsWindow {
+	w := &obsWindow{p: p, q: q, ns: len(p.support)}
+	for _, x := range q {
+		w.qlo, w.qhi = min(w.qlo, x), max(w.qhi, x)
+	}
+	w.init = make([][]float64, p.nl)
+	w.ent = make([][]obsEntry, p.nl)
+	w.h = make([][]float64, p.nl)
+	for l := 0; l < p.nl; l++ {
+		full := obsRowTimes(p.phi, p.m[l])
+		w.init[l] = make([]float64, w.ns)
+		w.h[l] = make([]float64, w.ns)
+		for a, i := range p.support {
+			w.init[l][a] = full[i]
+			for b, j := range p.support {
+				if v := p.m[l].At(i, j); v > 0 {
+					w.ent[l] = append(w.ent[l], obsEntry{a, b, v})
+					w.h[l][a] += v
+				}
+			}
+		}
+	}
+	return w
+}
+
+// width is the number of c values for a window of n events.
+func (w *obsWindow) width(n int) int { return n*(w.qhi-w.qlo) + 1 }
+
+// obsState is the joint law of (c, post-event state) after some events:
+// v[(c - base)*ns + i], with c in [lo, hi].
+type obsState struct {
+	v      []float64
+	base   int
+	lo, hi int
+	firsts []int
+}
+
+// run returns the law after n-1 events of a window whose first label is in
+// firsts.
+func (w *obsWindow) run(n int, firsts []int) obsState {
+	base := n * w.qlo
+	size := w.width(n) * w.ns
+	cur := make([]float64, size)
+	lo, hi := math.MaxInt, math.MinInt
+	for _, a := range firsts {
+		c := w.q[a]
+		lo, hi = min(lo, c), max(hi, c)
+		row := cur[(c-base)*w.ns:]
+		for i, x := range w.init[a] {
+			row[i] += x
+		}
+	}
+	next := make([]float64, size)
+	for k := 2; k < n; k++ {
+		clear(next[(lo+w.qlo-base)*w.ns : (hi+w.qhi-base+1)*w.ns])
+		for c := lo; c <= hi; c++ {
+			row := cur[(c-base)*w.ns : (c-base+1)*w.ns]
+			for l, es := range w.ent {
+				out := next[(c+w.q[l]-base)*w.ns:]
+				for _, e := range es {
+					out[e.j] += row[e.i] * e.v
+				}
+			}
+		}
+		cur, next = next, cur
+		lo, hi = lo+w.qlo, hi+w.qhi
+	}
+	return obsState{v: cur, base: base, lo: lo, hi: hi, firsts: firsts}
+}
+
+// finish applies the last event of the window, restricted to the labels in
+// lasts, and returns the normalised law with its weight. For n = 1 the
+// single event is both first and last.
+func (w *obsWindow) finish(st obsState, n int, lasts []int) CountDist {
+	acc := make([]float64, w.width(n))
+	if n == 1 {
+		for _, b := range lasts {
+			for _, a := range st.firsts {
+				if a != b {
+					continue
+				}
+				c := w.q[a]
+				acc[c-st.base] += obsSum(w.init[a])
+			}
+		}
+		return obsNormalize(acc, st.base)
+	}
+	for c := st.lo; c <= st.hi; c++ {
+		row := st.v[(c-st.base)*w.ns : (c-st.base+1)*w.ns]
+		for _, b := range lasts {
+			acc[c+w.q[b]-st.base] += obsDot(row, w.h[b])
+		}
+	}
+	return obsNormalize(acc, st.base)
+}
+
+// obsNormalize turns unnormalised masses over c = base, base+1, ... into a
+// CountDist whose Weight is their total.
+func obsNormalize(acc []float64, base int) CountDist {
+	d := CountDist{C: make([]int, len(acc)), P: acc}
+	for i := range acc {
+		d.C[i] = base + i
+	}
+	d.Weight = obsSum(acc)
+	if d.Weight > 0 {
+		for i := range acc {
+			acc[i] /= d.Weight
+		}
+	}
+	return d
+}

@@ -1,0 +1,1054 @@
+package likelihood
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"runtime"
+	"sync"
+	"sync/atomic"
+
+	"edgewise/models"
+
+	"gonum.org/v1/gonum/mat"
+)
+
+// StartMode chooses how the first event of each record enters the
+// likelihood.
+type StartMode int
+
+const (
+	// StartFirstEvent (the default) conditions each record on its first
+	// event: the state right after it has the stationary post-event law
+	// given its label, alpha_1 proportional to nu exp(L delta) (-D0)^{-1} D_{l_1},
+	// nu the stationary law of the post-event chain; without dead time
+	// this is proportional to pi D_{l_1}, pi the stationary law of L. The
+	// first event's time and label contribute nothing.
+	StartFirstEvent StartMode = iota
+	// StartStationary assumes the observation began at time 0 (the clock
+	// origin of the record) with the chain in its stationary law pi and the
+	// instrument ready (no dead time running), and includes the density of
+	// the first event: pi exp(D0 t_1) D_{l_1}. Record times must be >= 0.
+	StartStationary
+)
+
+// PathMode chooses between the general forward recursion and the fast path.
+type PathMode int
+
+const (
+	// PathAuto uses the fast path when it applies (every label on one
+	// directed edge and the spectral route in use), else the general one.
+	PathAuto PathMode = iota
+	// PathGeneral always runs the forward recursion on state vectors.
+	PathGeneral
+	// PathFast requires the fast path and fails when it does not apply.
+	PathFast
+)
+
+// Options configures an Evaluator.
+type Options struct {
+	Start      StartMode
+	Instrument Instrument
+	// Workers is the number of goroutines; <= 0 means GOMAXPROCS. The
+	// result does not depend on it, bit for bit: the data are cut into
+	// work items by a rule that depends on the data only, and the
+	// per-item results are summed in item order.
+	Workers int
+	// Method is the route for exp(D0 t); ExpAuto (the default) is spectral
+	// with an automatic fallback to Pade.
+	Method ExpMethod
+	Path   PathMode
+}
+
+// Evaluator computes the log-likelihood of data sets, and its gradient,
+// for one network under one set of options. Building it costs O(N^3)
+// (eigen-decomposition of D0, stationary laws, exp(L delta)); each
+// evaluation then costs O(N) per event on the fast path and O(N^2) per
+// event on the general path with the spectral route. It is immutable and
+// safe for concurrent use.
+type Evaluator struct {
+	k     *Kernels
+	opt   Options
+	n, nl int
+	prop  *Propagator
+	sp    *spectral // non-nil when the spectral route is in use
+	d0    []float64 // D0 row-major
+	delta float64
+	frame float64
+	g     []float64 // exp(L delta) row-major, nil without dead time
+	pi    []float64 // stationary law of L
+	nu    []float64 // stationary post-event law (sum 1)
+	w0    []float64 // nu G A: the pre-D law of the first event (StartFirstEvent)
+	amat  *mat.Dense // A = (-D0)^{-1}
+	kmat  *mat.Dense // K = G A D, the post-event chain
+	dsp   [][]dEntry
+	fast  bool
+	// Fast path tables (labels on one edge each). Pair index
+	// p = a*(nl+1) + b, a = previous label (nl: the stationary start),
+	// b = next label (nl: the censored end).
+	from, to []int
+	pw       []float64
+	cf       [][]float64    // [pair] f = dot(cf, z)
+	ahat     [][]complex128 // [a] V^T a
+	bhat     [][]complex128 // [b] V^{-1} b
+}
+
+type dEntry struct {
+	i, j int
+	v    float64
+}
+
+// NewEvaluator prepares the likelihood of the kernels k (from NewKernels)
+// under opt.
+func NewEvaluator(k *Kernels, opt Options) (*Evaluator, error) {
+	if k == nil || k.net == nil {
+		return nil, errors.New("likelihood: evaluator: kernels must come from NewKernels")
+	}
+	if err := opt.Instrument.Validate(); err != nil {
+		return nil, err
+	}
+	if opt.Start != StartFirstEvent && opt.Start != StartStationary {
+		return nil, fmt.Errorf("likelihood: unknown start mode %d", opt.Start)
+	}
+	n, nl := k.N, len(k.D)
+	e := &Evaluator{k: k, opt: opt, n: n, nl: nl, delta: opt.Instrument.DeadTime, frame: opt.Instrument.Frame}
+	e.d0 = append([]float64(nil), k.D0.RawMatrix().Data...)
+	prop, err := NewPropagator(k.D0, opt.Method)
+	if err != nil {
+		return nil, err
+	}
+	e.prop = prop
+	if prop.Method() == ExpSpectral {
+		e.sp = prop.spec
+	}
+	pi, err := k.net.Stationary()
+	if err != nil {
+		return nil, fmt.Errorf("likelihood: %w", err)
+	}
+	e.pi = pi
+	e.dsp = make([][]dEntry, nl)
+	for l, ts := range k.Edges {
+		for _, t := range ts {
+			e.dsp[l] = append(e.dsp[l], dEntry{t.From, t.To, k.Detect[l] * t.Rate})
+		}
+	}
+	if e.delta > 0 {
+		var ld, g mat.Dense
+		ld.Scale(e.delta, k.L)
+		g.Exp(&ld)
+		e.g = append([]float64(nil), g.RawMatrix().Data...)
+	}
+	if err := e.startLaw(); err != nil {
+		return nil, err
+	}
+	single := true
+	for _, ts := range k.Edges {
+		if len(ts) != 1 {
+			single = false
+		}
+	}
+	switch opt.Path {
+	case PathAuto:
+		e.fast = single && e.sp != nil
+	case PathFast:
+		if !single {
+			return nil, errors.New("likelihood: fast path needs every label on exactly one directed edge")
+		}
+		if e.sp == nil {
+			return nil, fmt.Errorf("likelihood: fast path needs the spectral route (in use: %v)", prop.Method())
+		}
+		e.fast = true
+	case PathGeneral:
+	default:
+		return nil, fmt.Errorf("likelihood: unknown path mode %d", opt.Path)
+	}
+	if e.fast {
+		e.fastTables()
+	}
+	return e, nil
+}
+
+// NewNetworkEvaluator builds the kernels of net and an Evaluator.
+func NewNetworkEvaluator(net *models.Network, opt Options) (*Evaluator, error) {
+	k, err := NewKernels(net)
+	if err != nil {
+		return nil, err
+	}
+	return NewEvaluator(k, opt)
+}
+
+// Method returns the exponential route in use (after any fallback).
+func (e *Evaluator) Method() ExpMethod { return e.prop.Method() }
+
+// Fast reports whether evaluations use the fast path.
+func (e *Evaluator) Fast() bool { return e.fast }
+
+// startLaw computes nu, the stationary law of K = G A D (G = exp(L delta),
+// A = (-D0)^{-1}, D = sum_l D_l), and w0 = nu G A.
+func (e *Evaluator) startLaw() error {
+	n := e.n
+	a, err := e.negD0Inverse()
+	if err != nil {
+		return err
+	}
+	ga := mat.NewDense(n, n, nil)
+	if e.g != nil {
+		ga.Mul(mat.NewDense(n, n, e.g), a)
+	} else {
+		ga.Copy(a)
+	}
+	dsum := mat.NewDense(n, n, nil)
+	for _, es := range e.dsp {
+		for _, d := range es {
+			dsum.Set(d.i, d.j, dsum.At(d.i, d.j)+d.v)
+		}
+	}
+	kk := mat.NewDense(n, n, nil)
+	kk.Mul(ga, dsum)
+	// nu (I - K + 1 u) = u with u = 1/n: nu = stationary law of K.
+	m := mat.NewDense(n, n, nil)
+	for i := 0; i < n; i++ {
+		for j := 0; j < n; j++ {
+			v := -kk.At(i, j) + 1/float64(n)
+			if i == j {
+				v++
+			}
+			m.Set(i, j, v)
+		}
+	}
+	u := mat.NewVecDense(n, nil)
+	for i := 0; i < n; i++ {
+		u.SetVec(i, 1/float64(n))
+	}
+	var nu mat.VecDense
+	if err := nu.SolveVec(m.T(), u); err != nil {
+		return fmt.Errorf("likelihood: stationary post-event law: %w", err)
+	}
+	e.nu = make([]float64, n)
+	s := 0.0
+	for i := range e.nu {
+		e.nu[i] = math.Max(nu.AtVec(i), 0)
+		s += e.nu[i]
+	}
+	for i := range e.nu {
+		e.nu[i] /= s
+	}
+	e.w0 = make([]float64, n)
+	rowTimes(e.w0, e.nu, ga.RawMatrix().Data, n)
+	e.amat, e.kmat = a, kk
+	return nil
+}
+
+// negD0Inverse returns A = (-D0)^{-1}.
+func (e *Evaluator) negD0Inverse() (*mat.Dense, error) {
+	n := e.n
+	neg := mat.NewDense(n, n, nil)
+	neg.Scale(-1, e.k.D0)
+	var a mat.Dense
+	if err := a.Inverse(neg); err != nil {
+		var c mat.Condition
+		if !errors.As(err, &c) || float64(c) > 1e15 {
+			return nil, fmt.Errorf("likelihood: D0 is singular (some states never reach a visible transition): %w", err)
+		}
+	}
+	return &a, nil
+}
+
+// fastTables precomputes, for every (previous, next) pair, the vectors
+// a^T W and W^{-1} b and their block products, so that
+// psi = a^T exp(D0 tau) b = dot(cf, z(tau)).
+func (e *Evaluator) fastTables() {
+	n, nl, s := e.n, e.nl, e.sp
+	e.from, e.to, e.pw = make([]int, nl), make([]int, nl), make([]float64, nl)
+	for l, ts := range e.k.Edges {
+		e.from[l], e.to[l], e.pw[l] = ts[0].From, ts[0].To, e.dsp[l][0].v
+	}
+	us := make([][]float64, nl+1) // a^T W
+	vs := make([][]float64, nl+1) // W^{-1} b
+	for a := 0; a <= nl; a++ {
+		var av []float64
+		if a < nl {
+			av = make([]float64, n)
+			if e.g != nil {
+				copy(av, e.g[e.to[a]*n:e.to[a]*n+n])
+			} else {
+				av[e.to[a]] = 1
+			}
+		} else {
+			av = e.pi
+		}
+		us[a] = make([]float64, n)
+		rowTimes(us[a], av, s.w, n)
+	}
+	for b := 0; b <= nl; b++ {
+		bv := make([]float64, n)
+		if b < nl {
+			bv[e.from[b]] = e.pw[b]
+		} else {
+			for i := range bv {
+				bv[i] = 1
+			}
+		}
+		vs[b] = make([]float64, n)
+		timesCol(vs[b], s.wi, bv, n)
+	}
+	e.cf = make([][]float64, (nl+1)*(nl+1))
+	for a := 0; a <= nl; a++ {
+		for b := 0; b <= nl; b++ {
+			u, v := us[a], vs[b]
+			c := make([]float64, n)
+			for k := 0; k < n; k++ {
+				switch s.kind[k] {
+				case 0:
+					c[k] = u[k] * v[k]
+				case 1:
+					c[k] = u[k]*v[k] + u[k+1]*v[k+1]
+					c[k+1] = u[k]*v[k+1] - u[k+1]*v[k]
+				}
+			}
+			e.cf[a*(nl+1)+b] = c
+		}
+	}
+	e.ahat = make([][]complex128, nl+1)
+	e.bhat = make([][]complex128, nl+1)
+	for a := 0; a <= nl; a++ {
+		e.ahat[a] = s.rowHat(us[a])
+		e.bhat[a] = s.colHat(vs[a])
+	}
+}
+
+// rowHat converts a row vector u = x W to the complex coordinates x V.
+func (s *spectral) rowHat(u []float64) []complex128 {
+	h := make([]complex128, s.n)
+	s.rowHatTo(h, u)
+	return h
+}
+
+func (s *spectral) rowHatTo(h []complex128, u []float64) {
+	for k := 0; k < s.n; k++ {
+		switch s.kind[k] {
+		case 0:
+			h[k] = complex(u[k], 0)
+		case 1:
+			h[k], h[k+1] = complex(u[k], u[k+1]), complex(u[k], -u[k+1])
+		}
+	}
+}
+
+// colHat converts a column vector v = W^{-1} b to V^{-1} b.
+func (s *spectral) colHat(v []float64) []complex128 {
+	h := make([]complex128, s.n)
+	s.colHatTo(h, v)
+	return h
+}
+
+func (s *spectral) colHatTo(h []complex128, v []float64) {
+	for k := 0; k < s.n; k++ {
+		switch s.kind[k] {
+		case 0:
+			h[k] = complex(v[k], 0)
+		case 1:
+			h[k], h[k+1] = complex(v[k]/2, -v[k+1]/2), complex(v[k]/2, v[k+1]/2)
+		}
+	}
+}
+
+// blockHat converts block coefficients to one complex value per column.
+func (s *spectral) blockHatTo(h []complex128, z []float64) {
+	for k := 0; k < s.n; k++ {
+		switch s.kind[k] {
+		case 0:
+			h[k] = complex(z[k], 0)
+		case 1:
+			h[k], h[k+1] = complex(z[k], z[k+1]), complex(z[k], -z[k+1])
+		}
+	}
+}
+
+// LogLik returns the log-likelihood of d (natural log; densities in
+// 1/time for exact timestamps, probabilities for frame intervals).
+func (e *Evaluator) LogLik(d *Data) (float64, error) {
+	acc, err := e.run(d, false)
+	if err != nil {
+		return math.NaN(), err
+	}
+	return acc.ll, nil
+}
+
+// LogLik is a convenience: the log-likelihood of d under net.
+func LogLik(net *models.Network, d *Data, opt Options) (float64, error) {
+	e, err := NewNetworkEvaluator(net, opt)
+	if err != nil {
+		return math.NaN(), err
+	}
+	return e.LogLik(d)
+}
+
+// dataLabels maps data label indices to kernel label indices.
+func (e *Evaluator) dataLabels(d *Data) ([256]int16, error) {
+	var lm [256]int16
+	for i := range lm {
+		lm[i] = -1
+	}
+	if len(d.Labels) > 256 {
+		return lm, fmt.Errorf("likelihood: %d labels; at most 256", len(d.Labels))
+	}
+	for i, name := range d.Labels {
+		j := -1
+		for l, kn := range e.k.Labels {
+			if kn == name {
+				j = l
+			}
+		}
+		if j < 0 {
+			return lm, fmt.Errorf("likelihood: data label %q is not a label of the model (model labels %q)", name, e.k.Labels)
+		}
+		lm[i] = int16(j)
+	}
+	return lm, nil
+}
+
+// item is one unit of work: whole records (general path) or a range of
+// events of one record (fast path). Items depend on the data only.
+type item struct {
+	segs []segment
+	acc  *accum
+	err  error
+}
+
+type segment struct {
+	r      int
+	k0, k1 int // events [k0, k1)
+}
+
+// itemEvents is the target number of events per work item.
+const itemEvents = 1 << 15
+
+func (e *Evaluator) items(d *Data) []item {
+	var its []item
+	var cur item
+	count := 0
+	flush := func() {
+		if len(cur.segs) > 0 {
+			its = append(its, cur)
+		}
+		cur, count = item{}, 0
+	}
+	for r := range d.Records {
+		n := d.Records[r].Len()
+		if e.fast && n > itemEvents {
+			flush()
+			for k0 := 0; k0 < n; k0 += itemEvents {
+				cur.segs = append(cur.segs, segment{r, k0, min(k0+itemEvents, n)})
+				flush()
+			}
+			continue
+		}
+		cur.segs = append(cur.segs, segment{r, 0, n})
+		count += n
+		if count >= itemEvents {
+			flush()
+		}
+	}
+	flush()
+	return its
+}
+
+// run evaluates d, with the gradient accumulators when grad is true.
+func (e *Evaluator) run(d *Data, grad bool) (*accum, error) {
+	if d == nil || len(d.Records) == 0 {
+		return nil, errors.New("likelihood: no records")
+	}
+	lm, err := e.dataLabels(d)
+	if err != nil {
+		return nil, err
+	}
+	for r := range d.Records {
+		rec := &d.Records[r]
+		if rec.Len() == 0 {
+			return nil, fmt.Errorf("likelihood: record %q is empty", rec.ID)
+		}
+		if len(rec.Label) != len(rec.Time) {
+			return nil, fmt.Errorf("likelihood: record %q has %d times and %d labels", rec.ID, len(rec.Time), len(rec.Label))
+		}
+	}
+	its := e.items(d)
+	workers := e.opt.Workers
+	if workers <= 0 {
+		workers = runtime.GOMAXPROCS(0)
+	}
+	workers = min(workers, len(its))
+	var next atomic.Int64
+	var wg sync.WaitGroup
+	for w := 0; w < workers; w++ {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			ws := e.newWork(grad)
+			for {
+				i := int(next.Add(1)) - 1
+				if i >= len(its) {
+					return
+				}
+				it := &its[i]
+				it.acc = e.newAccum(grad)
+				ws.acc = it.acc
+				for _, sg := range it.segs {
+					var err error
+					if e.fast {
+						err = e.fastSegment(ws, d, &lm, sg)
+					} else {
+						err = e.generalRecord(ws, d, &lm, sg.r)
+					}
+					if err != nil {
+						it.err = err
+						break
+					}
+				}
+			}
+		}()
+	}
+	wg.Wait()
+	total := e.newAccum(grad)
+	for i := range its {
+		if its[i].err != nil {
+			return nil, its[i].err
+		}
+		total.add(its[i].acc)
+	}
+	total.ll += total.lmant
+	if math.IsNaN(total.ll) || math.IsInf(total.ll, 0) {
+		return nil, fmt.Errorf("likelihood: log-likelihood is %v", total.ll)
+	}
+	return total, nil
+}
+
+// accum holds the log-likelihood and the gradient accumulators of a
+// work item. All gradient accumulators are sensitivities of ln L:
+// sd0 to the entries of D0 (direct), sg to exp(L delta), sd[l][e] to the
+// e-th entry of D_l, gw to the start law w0, gpi to pi; p, q, dg are the
+// eigen-coordinate sums whose combination gives the sensitivity to D0
+// through exp(D0 t) (see gradient.go); sz, sd2, cnt are the fast-path
+// per-pair sums.
+type accum struct {
+	ll    float64
+	lmant float64 // sum of ln(mantissa) of the fast path's scaled products
+	grad  bool
+	sd0   []float64
+	sg    []float64
+	sd    [][]float64
+	gw    []float64
+	gpi   []float64
+	p, q  []complex128
+	dg    []complex128
+	sz    [][]float64
+	szd   [][]float64
+	cnt   []float64
+}
+
+func (e *Evaluator) newAccum(grad bool) *accum {
+	a := &accum{grad: grad}
+	if !grad {
+		return a
+	}
+	n := e.n
+	a.sd0 = make([]float64, n*n)
+	a.sg = make([]float64, n*n)
+	a.sd = make([][]float64, e.nl)
+	for l := range a.sd {
+		a.sd[l] = make([]float64, len(e.dsp[l]))
+	}
+	a.gw = make([]float64, n)
+	a.gpi = make([]float64, n)
+	if e.sp != nil {
+		a.p = make([]complex128, n*n)
+		a.q = make([]complex128, n*n)
+		a.dg = make([]complex128, n)
+	}
+	if e.fast {
+		np := (e.nl + 1) * (e.nl + 1)
+		a.sz = make([][]float64, np)
+		a.szd = make([][]float64, np)
+		for i := range a.sz {
+			a.sz[i] = make([]float64, n)
+			a.szd[i] = make([]float64, n)
+		}
+		a.cnt = make([]float64, e.nl)
+	}
+	return a
+}
+
+func addTo[T float64 | complex128](dst, src []T) {
+	for i := range src {
+		dst[i] += src[i]
+	}
+}
+
+func (a *accum) add(b *accum) {
+	a.ll += b.ll
+	a.lmant += b.lmant
+	if !a.grad {
+		return
+	}
+	addTo(a.sd0, b.sd0)
+	addTo(a.sg, b.sg)
+	for l := range a.sd {
+		addTo(a.sd[l], b.sd[l])
+	}
+	addTo(a.gw, b.gw)
+	addTo(a.gpi, b.gpi)
+	addTo(a.p, b.p)
+	addTo(a.q, b.q)
+	addTo(a.dg, b.dg)
+	for i := range a.sz {
+		addTo(a.sz[i], b.sz[i])
+		addTo(a.szd[i], b.szd[i])
+	}
+	addTo(a.cnt, b.cnt)
+}
+
+// interval returns the range [lo, hi] of the time spent under D0 for a
+// reported gap g, and whether that range is possible:
+//
+//   - exact timestamps: lo = hi = g - delta (requires g >= delta);
+//   - frames of length F: the gap lies in [max(g - F/2, 0), g + F/2],
+//     shifted by the dead time and clipped at 0 (requires g + F/2 > delta).
+func (e *Evaluator) interval(g float64, dead bool) (lo, hi float64, ok bool) {
+	dt := 0.0
+	if dead {
+		dt = e.delta
+	}
+	if e.frame == 0 {
+		t := g - dt
+		return t, t, t >= 0 && !math.IsInf(t, 0)
+	}
+	if !(g >= 0) || math.IsInf(g, 0) {
+		return 0, 0, false
+	}
+	lo = math.Max(g-e.frame/2, 0) - dt
+	hi = g + e.frame/2 - dt
+	return math.Max(lo, 0), hi, hi > 0
+}
+
+// gapError describes an impossible or invalid gap.
+func gapError(rec *Record, k int, g float64, delta float64) error {
+	t := rec.Time[k]
+	switch {
+	case math.IsNaN(t) || math.IsInf(t, 0):
+		return fmt.Errorf("likelihood: record %q event %d: time %v is not finite", rec.ID, k+1, t)
+	case g < 0:
+		return fmt.Errorf("likelihood: record %q event %d: time %v is before the previous event (%v)", rec.ID, k+1, t, t-g)
+	}
+	return fmt.Errorf("likelihood: record %q event %d: gap %v is shorter than the dead time %v: impossible under the instrument", rec.ID, k+1, g, delta)
+}
+
+func impossible(rec *Record, k int, what string, v float64) error {
+	if k >= len(rec.Time) {
+		return fmt.Errorf("likelihood: record %q: censored end at %v: %s %v: impossible under the model", rec.ID, rec.End, what, v)
+	}
+	return fmt.Errorf("likelihood: record %q event %d (time %v): %s %v: impossible under the model", rec.ID, k+1, rec.Time[k], what, v)
+}
+
+// work holds per-goroutine scratch space.
+type work struct {
+	acc                 *accum
+	z, dz               []float64
+	u, u0, x, y, b, v   []float64
+	alpha, alpha2, beta []float64
+	ah, bh, zh, dh      []complex128
+	ck, buf             []float64 // checkpoints and segment buffer of backward vectors
+	emat                *mat.Dense
+	cache               map[[2]float64][]float64 // dense route: interval -> matrix
+	vl                  map[[2]float64][]float64 // dense route: interval -> sum a b^T / c
+}
+
+func (e *Evaluator) newWork(grad bool) *work {
+	n := e.n
+	f := func() []float64 { return make([]float64, n) }
+	w := &work{z: f(), dz: f(), u: f(), u0: f(), x: f(), y: f(), b: f(), v: f(),
+		alpha: f(), alpha2: f(), beta: f(),
+		ah: make([]complex128, n), bh: make([]complex128, n), zh: make([]complex128, n), dh: make([]complex128, n)}
+	if e.sp == nil {
+		w.emat = mat.NewDense(n, n, nil)
+		w.cache = map[[2]float64][]float64{}
+		if grad {
+			w.vl = map[[2]float64][]float64{}
+		}
+	}
+	return w
+}
+
+// mantissa scaling bounds for the fast path's running product.
+const (
+	prodLow  = 0x1p-600
+	prodHigh = 0x1p600
+)
+
+// fastSegment handles events [k0, k1) of record sg.r on the fast path: the
+// pair factors psi(tau_k) for k in [max(k0, 1), k1), plus the stationary
+// start when k0 == 0 and the censored end when k1 == n.
+func (e *Evaluator) fastSegment(ws *work, d *Data, lm *[256]int16, sg segment) error {
+	rec := &d.Records[sg.r]
+	acc := ws.acc
+	nl := e.nl
+	np1 := nl + 1
+	s := e.sp
+	z, dz := ws.z, ws.dz
+	grad := acc.grad
+	tm, lb := rec.Time, rec.Label
+	mant, ex := 1.0, 0
+	step := func(k, pair int, lo, hi float64) error {
+		if lo == hi {
+			if grad {
+				s.coefExact(lo, z, dz)
+			} else {
+				s.coefExact(lo, z, nil)
+			}
+		} else if grad {
+			s.coefInterval(lo, hi, z, dz)
+		} else {
+			s.coefInterval(lo, hi, z, nil)
+		}
+		c := e.cf[pair]
+		f := 0.0
+		for i, v := range c {
+			f += v * z[i]
+		}
+		if !(f > 0) || f > math.MaxFloat64 {
+			return impossible(rec, k, "density", f)
+		}
+		mant *= f
+		if mant < prodLow || mant > prodHigh {
+			fr, xe := math.Frexp(mant)
+			mant, ex = fr, ex+xe
+		}
+		if grad {
+			inv := 1 / f
+			szp, sdp := acc.sz[pair], acc.szd[pair]
+			for i := range z {
+				szp[i] += z[i] * inv
+				sdp[i] += dz[i] * inv
+			}
+		}
+		return nil
+	}
+	label := func(k int) (int, error) {
+		l := lm[lb[k]]
+		if l < 0 {
+			return 0, fmt.Errorf("likelihood: record %q event %d: label index %d is not in the data's label table (%d labels)", rec.ID, k+1, lb[k], len(d.Labels))
+		}
+		return int(l), nil
+	}
+	n := len(tm)
+	if sg.k0 == 0 {
+		l, err := label(0)
+		if err != nil {
+			return err
+		}
+		if e.opt.Start == StartStationary {
+			g := tm[0]
+			lo, hi, ok := e.interval(g, false)
+			if !ok || math.IsNaN(g) {
+				return fmt.Errorf("likelihood: record %q event 1: time %v: a stationary start needs a finite time >= 0", rec.ID, g)
+			}
+			if err := step(0, nl*np1+l, lo, hi); err != nil {
+				return err
+			}
+			if grad {
+				acc.cnt[l]++
+			}
+		}
+	}
+	prev := -1
+	if k := max(sg.k0, 1); k <= n {
+		p, err := label(k - 1)
+		if err != nil {
+			return err
+		}
+		prev = p
+	}
+	for k := max(sg.k0, 1); k < sg.k1; k++ {
+		l := int(lm[lb[k]])
+		if l < 0 {
+			_, err := label(k)
+			return err
+		}
+		g := tm[k] - tm[k-1]
+		lo, hi, ok := e.interval(g, true)
+		if !ok {
+			return gapError(rec, k, g, e.delta)
+		}
+		if err := step(k, prev*np1+l, lo, hi); err != nil {
+			return err
+		}
+		if grad {
+			acc.cnt[l]++
+		}
+		prev = l
+	}
+	if sg.k1 == n && !math.IsNaN(rec.End) {
+		t := rec.End - tm[n-1] - e.delta
+		if !(rec.End >= tm[n-1]) || math.IsInf(rec.End, 0) {
+			return fmt.Errorf("likelihood: record %q: end %v is before the last event (%v) or not finite", rec.ID, rec.End, tm[n-1])
+		}
+		if t > 0 {
+			last, err := label(n - 1)
+			if err != nil {
+				return err
+			}
+			if err := step(n, last*np1+nl, t, t); err != nil {
+				return err
+			}
+		}
+	}
+	fr, xe := math.Frexp(mant)
+	acc.lmant += math.Log(fr) + float64(ex+xe)*math.Ln2
+	return nil
+}
+
+// stepInfo describes step s of the general recursion of a record.
+type stepInfo struct {
+	k      int // event index (len(Time) for the censored end)
+	lab    int // kernel label, -1 for the censored end (D = identity)
+	lo, hi float64
+	useG   bool // apply exp(L delta) before exp(D0 t)
+}
+
+// generalSteps returns the number of steps of record rec and a function
+// that describes step s. Steps: the first event (StartStationary only),
+// events 2..n, and the censored end when End is known and later than the
+// last event plus the dead time.
+func (e *Evaluator) generalSteps(rec *Record, lm *[256]int16, nLab int) (int, func(s int) (stepInfo, error), error) {
+	n := rec.Len()
+	off := 1
+	if e.opt.Start == StartStationary {
+		off = 0
+	}
+	steps := n - off
+	hasEnd := false
+	if !math.IsNaN(rec.End) {
+		if !(rec.End >= rec.Time[n-1]) || math.IsInf(rec.End, 0) {
+			return 0, nil, fmt.Errorf("likelihood: record %q: end %v is before the last event (%v) or not finite", rec.ID, rec.End, rec.Time[n-1])
+		}
+		if rec.End-rec.Time[n-1]-e.delta > 0 {
+			hasEnd = true
+			steps++
+		}
+	}
+	info := func(s int) (stepInfo, error) {
+		k := s + off
+		if k == n {
+			if !hasEnd {
+				return stepInfo{}, errors.New("likelihood: internal error: step beyond the record")
+			}
+			t := rec.End - rec.Time[n-1] - e.delta
+			return stepInfo{k: n, lab: -1, lo: t, hi: t, useG: e.g != nil}, nil
+		}
+		l := lm[rec.Label[k]]
+		if l < 0 {
+			return stepInfo{}, fmt.Errorf("likelihood: record %q event %d: label index %d is not in the data's label table (%d labels)", rec.ID, k+1, rec.Label[k], nLab)
+		}
+		if k == 0 {
+			g := rec.Time[0]
+			lo, hi, ok := e.interval(g, false)
+			if !ok || math.IsNaN(g) {
+				return stepInfo{}, fmt.Errorf("likelihood: record %q event 1: time %v: a stationary start needs a finite time >= 0", rec.ID, g)
+			}
+			return stepInfo{k: 0, lab: int(l), lo: lo, hi: hi}, nil
+		}
+		g := rec.Time[k] - rec.Time[k-1]
+		lo, hi, ok := e.interval(g, true)
+		if !ok {
+			return stepInfo{}, gapError(rec, k, g, e.delta)
+		}
+		return stepInfo{k: k, lab: int(l), lo: lo, hi: hi, useG: e.g != nil}, nil
+	}
+	return steps, info, nil
+}
+
+// propRow sets out = x E(lo, hi) where E is exp(D0 t) (lo == hi) or the
+// integral over [lo, hi]. On the spectral route it leaves x W in ws.u0 and
+// the block coefficients in ws.z (and ws.dz when wantD).
+func (e *Evaluator) propRow(ws *work, out, x []float64, lo, hi float64, wantD bool) error {
+	n := e.n
+	if s := e.sp; s != nil {
+		var dz []float64
+		if wantD {
+			dz = ws.dz
+		}
+		if lo == hi {
+			s.coefExact(lo, ws.z, dz)
+		} else {
+			s.coefInterval(lo, hi, ws.z, dz)
+		}
+		rowTimes(ws.u0, x, s.w, n)
+		copy(ws.u, ws.u0)
+		s.rowBlock(ws.u, ws.z)
+		rowTimes(out, ws.u, s.wi, n)
+		return nil
+	}
+	m, err := e.denseE(ws, lo, hi)
+	if err != nil {
+		return err
+	}
+	rowTimes(out, x, m, n)
+	return nil
+}
+
+// propCol sets out = E(lo, hi) b. On the spectral route it leaves
+// W^{-1} b in ws.v (before the block product) and uses the coefficients
+// already in ws.z when haveZ.
+func (e *Evaluator) propCol(ws *work, out, b []float64, lo, hi float64, haveZ bool) error {
+	n := e.n
+	if s := e.sp; s != nil {
+		if !haveZ {
+			if lo == hi {
+				s.coefExact(lo, ws.z, nil)
+			} else {
+				s.coefInterval(lo, hi, ws.z, nil)
+			}
+		}
+		timesCol(ws.v, s.wi, b, n)
+		copy(ws.y, ws.v)
+		s.colBlock(ws.y, ws.z)
+		timesCol(out, s.w, ws.y, n)
+		return nil
+	}
+	m, err := e.denseE(ws, lo, hi)
+	if err != nil {
+		return err
+	}
+	timesCol(out, m, b, n)
+	return nil
+}
+
+// denseCacheMax bounds the dense route's per-goroutine cache of
+// exponentials by interval (camera-frame data repeat a few values).
+const denseCacheMax = 4096
+
+// denseE returns E(lo, hi) on the dense route, cached by exact interval.
+func (e *Evaluator) denseE(ws *work, lo, hi float64) ([]float64, error) {
+	key := [2]float64{lo, hi}
+	if m, ok := ws.cache[key]; ok {
+		return m, nil
+	}
+	var err error
+	if lo == hi {
+		err = e.prop.Exp(ws.emat, lo)
+	} else {
+		err = e.prop.Integral(ws.emat, lo, hi)
+	}
+	if err != nil {
+		return nil, err
+	}
+	m := append([]float64(nil), ws.emat.RawMatrix().Data...)
+	if len(ws.cache) >= denseCacheMax {
+		clear(ws.cache)
+	}
+	ws.cache[key] = m
+	return m, nil
+}
+
+// applyD sets out = x D_l (row) for l >= 0, or copies x for the end step.
+func (e *Evaluator) applyDRow(out, x []float64, l int) {
+	if l < 0 {
+		copy(out, x)
+		return
+	}
+	for j := range out {
+		out[j] = 0
+	}
+	for _, d := range e.dsp[l] {
+		out[d.j] += x[d.i] * d.v
+	}
+}
+
+// applyDCol sets out = D_l b (column) for l >= 0, or copies b.
+func (e *Evaluator) applyDCol(out, b []float64, l int) {
+	if l < 0 {
+		copy(out, b)
+		return
+	}
+	for i := range out {
+		out[i] = 0
+	}
+	for _, d := range e.dsp[l] {
+		out[d.i] += d.v * b[d.j]
+	}
+}
+
+func sum(v []float64) float64 {
+	s := 0.0
+	for _, x := range v {
+		s += x
+	}
+	return s
+}
+
+func dot(a, b []float64) float64 {
+	s := 0.0
+	for i, x := range a {
+		s += x * b[i]
+	}
+	return s
+}
+
+// generalRecord runs the forward recursion of record r:
+// alpha_k = alpha_{k-1} exp(L delta) E_k D_{l_k}, scaled to sum 1 at every
+// step with ln L accumulating the logs of the scale factors. With the
+// gradient it first runs the backward recursion (storing checkpoints),
+// then the forward one with the accumulations of gradient.go.
+func (e *Evaluator) generalRecord(ws *work, d *Data, lm *[256]int16, r int) error {
+	rec := &d.Records[r]
+	n := e.n
+	steps, info, err := e.generalSteps(rec, lm, len(d.Labels))
+	if err != nil {
+		return err
+	}
+	l1 := lm[rec.Label[0]]
+	if l1 < 0 {
+		return fmt.Errorf("likelihood: record %q event 1: label index %d is not in the data's label table (%d labels)", rec.ID, rec.Label[0], len(d.Labels))
+	}
+	alpha := ws.alpha
+	if e.opt.Start == StartStationary {
+		copy(alpha, e.pi)
+	} else {
+		e.applyDRow(alpha, e.w0, int(l1))
+		s := sum(alpha)
+		if !(s > 0) {
+			return impossible(rec, 0, "first-event probability", s)
+		}
+		for i := range alpha {
+			alpha[i] /= s
+		}
+	}
+	if ws.acc.grad {
+		return e.generalGrad(ws, rec, steps, info, int(l1))
+	}
+	acc := ws.acc
+	x, tmp := ws.x, ws.alpha2
+	for s := 0; s < steps; s++ {
+		st, err := info(s)
+		if err != nil {
+			return err
+		}
+		if st.useG {
+			rowTimes(x, alpha, e.g, n)
+		} else {
+			copy(x, alpha)
+		}
+		if err := e.propRow(ws, tmp, x, st.lo, st.hi, false); err != nil {
+			return err
+		}
+		e.applyDRow(alpha, tmp, st.lab)
+		c := sum(alpha)
+		if !(c > 0) || c > math.MaxFloat64 {
+			return impossible(rec, st.k, "density", c)
+		}
+		acc.ll += math.Log(c)
+		for i := range alpha {
+			alpha[i] /= c
+		}
+	}
+	return nil
+}
