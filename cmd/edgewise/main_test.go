@@ -99,4 +99,8 @@ func TestSimulateDeterministicAndSafe(t *testing.T) {
 	if !bytes.Equal(x, y) {
 		t.Fatal("file changed without --force")
 	}
+	// Outputs are readable by others (CreateTemp alone would leave 0600).
+	if st, err := os.Stat(a); err != nil || st.Mode().Perm() != 0o644 {
+		t.Fatalf("output mode %v (%v), want -rw-r--r--", st.Mode().Perm(), err)
+	}
 }

@@ -56,6 +56,9 @@ func (r *report) write(w io.Writer, format string) error {
 			cw.Write(t.Columns)
 			cw.WriteAll(t.Rows)
 		}
+		for _, n := range r.Notes {
+			cw.Write([]string{"# note: " + n})
+		}
 		cw.Flush()
 		return cw.Error()
 	case "markdown":

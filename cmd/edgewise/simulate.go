@@ -115,6 +115,11 @@ func writeAtomic(path string, force bool, gen func(io.Writer) error) error {
 		tmp.Close()
 		return err
 	}
+	// CreateTemp makes the file owner-only; an output is for sharing.
+	if err := tmp.Chmod(0o644); err != nil {
+		tmp.Close()
+		return err
+	}
 	if err := tmp.Close(); err != nil {
 		return err
 	}
