@@ -4,6 +4,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"strconv"
 	"testing"
 )
 
@@ -17,9 +18,11 @@ func recBigFile(b *testing.B, clock float64) string {
 	path := filepath.Join(b.TempDir(), "big.csv")
 	d := recSimulate(b, recModel(b, "../testdata/ring3.toml"), 1, 4, benchEvents/4)
 	if clock > 0 {
+		digits := int(math.Ceil(-math.Log10(clock)))
 		for i := range d.Records {
 			for k, t := range d.Records[i].Time {
-				d.Records[i].Time[k] = math.Round(t/clock) * clock
+				// Through text, so that the value is the shortest decimal.
+				d.Records[i].Time[k], _ = strconv.ParseFloat(strconv.FormatFloat(math.Round(t/clock)*clock, 'f', digits, 64), 64)
 			}
 		}
 	}

@@ -101,8 +101,9 @@ type VariancePoint struct {
 //
 //  1. F*J, with F = ln[P(+|+)/P(-|-)] and J the visible current;
 //  2. the TUR bound J^2/D, with D from Var c(t) ~ 2 D t over non-overlapping
-//     windows of durations t = t_max 2^-j, t_max = Duration/400, fitted on
-//     the four longest (t >= t_max/8);
+//     windows of durations t = t_max 2^-j, t_max = Duration/400 (at least 32
+//     mean gaps, at most the longest record), fitted on the four longest
+//     (t >= t_max/8);
 //  3. the transition-based waiting-time bound (Harunari, Dutta, Polettini
 //     and Roldan, PRX 12, 041026 (2022); van der Meer, Ertel and Seifert,
 //     PRX 12, 031025 (2022))
@@ -150,10 +151,12 @@ func EntropyBounds(d *likelihood.Data, opt BoundOptions) (*Bounds, error) {
 	}
 	b := &Bounds{Claimed: !opt.MultiEdge, Events: events, Duration: span}
 	b.F = EffectiveAffinity(d, fw, bw, AffinityOptions{Level: opt.Level})
-	// Windows never cross records: with short records the longest windows
-	// come from the longest record only.
-	tmax := math.Min(span/400, bLongest(d))
+	// The longest window: 1/400 of the observed time, but at least 32 mean
+	// gaps so that small data sets still give a variance curve. Windows
+	// never cross records: with short records the longest windows come
+	// from the longest record only.
 	mgap := span / float64(events)
+	tmax := math.Min(math.Max(span/400, 32*mgap), bLongest(d))
 	var grid []float64
 	for t := tmax; t >= mgap/2 && len(grid) < 16; t /= 2 {
 		grid = append(grid, t)
@@ -206,12 +209,16 @@ func EntropyBounds(d *likelihood.Data, opt BoundOptions) (*Bounds, error) {
 	b.FJ = bootEstimate(fj0, bfj, opt.Level, method)
 	b.D = bootEstimate(d0, bd, opt.Level, method)
 	b.TUR = bootEstimate(tur0, btur, opt.Level, method)
-	if nfit < 4 || tmax < 8*mgap {
-		note := fmt.Sprintf("too few events for the variance curve (longest window %.3g mean gaps): D and the TUR bound are rough", tmax/mgap)
+	w0 := 0
+	if len(grid) > 0 {
+		w0 = int(tot.w[0])
+	}
+	if nfit < 4 || tmax < 8*mgap || w0 < 50 {
+		note := fmt.Sprintf("too few events for the variance curve (longest window %.3g mean gaps, %d such windows; want >= 8 and >= 50): D and the TUR bound are rough", tmax/mgap, w0)
 		b.D.Note, b.TUR.Note = joinNote(b.D.Note, note), joinNote(b.TUR.Note, note)
 	}
 	if !(d0 > 0) {
-		b.D.Note = joinNote(b.D.Note, "the fitted slope of Var c(t) is not positive")
+		b.D.Note = joinNote(b.D.Note, "the fitted slope of Var c(t) is not positive or not defined")
 		b.TUR = nanEstimate(b.TUR.Method, "D is not positive: no TUR bound")
 	}
 	if math.IsInf(f0, 0) || math.IsNaN(f0) {

@@ -5,6 +5,8 @@ import (
 	"math/rand/v2"
 	"strings"
 	"testing"
+
+	"edgewise/likelihood"
 )
 
 // TestBoundsAgainstExact checks the three bounds on a two-cycle network
@@ -17,7 +19,7 @@ import (
 //     PRX 12, 041026 (2022)), J^2/D by the TUR (Barato and Seifert, PRL
 //     114, 158101 (2015));
 //   - the estimates agree with exact values of the same quantities within
-//     4 SE: F*J from the embedded chain, D = lambda''(0)/2 from the tilted
+//     4 SE: F*J from the embedded chain, D = (d^2 lambda/dz^2 at z = 0)/2 from the tilted
 //     generator, the waiting-time part from quadrature of psi curves built
 //     with mat.Exp (allowing 0.02 nats per divergence for the measured kNN
 //     bias, times the pair rate);
@@ -117,5 +119,43 @@ func TestBoundsMultiEdge(t *testing.T) {
 	}
 	if math.IsNaN(b.J.Value) || math.IsNaN(b.D.Value) {
 		t.Error("J or D missing")
+	}
+}
+
+// TestBoundsSmallData: a few events give numbers with notes or NaN, never
+// a panic or a silent bound; an empty data set is an error.
+func TestBoundsSmallData(t *testing.T) {
+	u, w, _ := flSmallRing()
+	for _, n := range []int{3, 30, 300} {
+		d := flSimulate(t, flRing(u, w), n, 1, 2)
+		b, err := EntropyBounds(d, BoundOptions{Seed: 1})
+		if err != nil {
+			t.Fatalf("%d events: %v", n, err)
+		}
+		if n < 300 && b.TUR.Note == "" && b.D.Note == "" {
+			t.Errorf("%d events: TUR %v without a note", n, b.TUR)
+		}
+		if b.Gaps[0] < 1000 && !math.IsNaN(b.WaitingTime.Value) && b.WaitingTime.Note == "" {
+			t.Errorf("%d events: waiting-time part %v without a warning", n, b.WaitingTime)
+		}
+	}
+	if _, err := EntropyBounds(&likelihood.Data{Labels: []string{"+", "-"}}, BoundOptions{}); err == nil {
+		t.Error("empty data accepted")
+	}
+}
+
+// TestBoundsTinyRecords: many records shorter than a mean gap leave no
+// variance curve; the result says so instead of failing.
+func TestBoundsTinyRecords(t *testing.T) {
+	d := &likelihood.Data{Labels: []string{"+", "-"}}
+	for i := 0; i < 50; i++ {
+		d.Records = append(d.Records, likelihood.Record{Time: []float64{0, 10, 10.001}, Label: []uint8{0, 0, 1}, End: math.NaN()})
+	}
+	b, err := EntropyBounds(d, BoundOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !math.IsNaN(b.TUR.Value) || b.TUR.Note == "" {
+		t.Errorf("TUR %+v", b.TUR)
 	}
 }

@@ -1,7 +1,72 @@
 // Package infer turns records of visible transitions into statistics,
-// tests and fits.
+// tests and fits. This file documents the data side: reading records,
+// model-free summaries, and the checks of the assumptions behind a
+// single-visible-edge analysis.
 //
-// Data in: ReadRecords reads CSV or TSV records (columns time, label and
-// optionally record) or state traces into a likelihood.Data, with errors
-// that name file, line and column.
+// # Records
+//
+// ReadRecords and ReadFile read CSV or TSV text with a header naming the
+// columns time and label (and optionally record) in any order, or a state
+// trace with columns time and state, into a likelihood.Data (9 bytes per
+// event). Rows of a record are contiguous; a row labelled "end" gives the
+// record's end time. Every problem is a *ReadError naming file, line and
+// column. WriteRecords writes data back so that reading it again gives the
+// same values bit for bit.
+//
+// # Summary
+//
+// Summarize gives, pooled over records and per record, for labels l, l'
+// and a visible edge with forward label + and backward label -:
+//
+//	duration T      = sum over records of (end - t_1)   (end = last event if unknown)
+//	rate(l)         = n_l / T                            (n_l: l events after each t_1)
+//	J               = (n_+ - n_-) / T,  activity = (n_+ + n_-) / T
+//	P(l'|l)         = N_{ll'} / N_{l.}                   (consecutive pairs in a record)
+//	F               = ln[ P(+|+) / P(-|-) ]              (k_B T)
+//
+// with Clopper-Pearson intervals for P(l'|l): the k-out-of-n interval
+// [B^{-1}(a/2; k, n-k+1), B^{-1}(1-a/2; k+1, n-k)] (B^{-1} the Beta
+// quantile, a = 1 - level). The standard error of F is the delta-method one,
+//
+//	Var(F) ~ 1/N_{++} - 1/N_{+.} + 1/N_{--} - 1/N_{-.},
+//
+// so the rarest pair dominates. EffectiveAffinity can also bootstrap: over
+// records when there are many, else over contiguous blocks of event pairs
+// (a seed fixes the result). When a pair was never seen the plug-in F is
+// infinite; the estimate then carries the one-sided bound that the
+// Clopper-Pearson limits of P(+|+) and P(-|-) support.
+//
+// The current's diffusion coefficient and Fano factor come from
+// non-overlapping windows of fixed length w (50 events on average by
+// default): with c_i = n_+ - n_- in window i, D = s_c^2 / (2 w) and
+// Fano = s_c^2 / |mean c_i| (= 2 D / |J|, the randomness parameter for unit
+// steps), s_c^2 the sample variance over windows.
+//
+// Inter-transition times are summarised per pair (l, l'): count, mean,
+// median and coefficient of variation of the times from an l event to the
+// next event when that is l'.
+//
+// # Tests
+//
+// ShapeTest compares the ++ and -- gap distributions after dividing each by
+// its mean (two-sample Kolmogorov-Smirnov, exact for small samples). If
+// every driven cycle passes through the visible edge and detection is
+// perfect, psi_{+->+}(t) / psi_{-->-}(t) = e^F for all t and the shapes are
+// equal; a difference rules all such schemes out.
+//
+// MarkovOrderTest is the likelihood-ratio test of first- against
+// second-order dependence of the labels (Anderson and Goodman 1957):
+//
+//	G = 2 sum_ijk n_ijk ln[ n_ijk n_.j. / (n_ij. n_.jk) ] ~ chi2( sum_j (r_j - 1)(c_j - 1) ).
+//
+// Labels on single directed edges stay first-order Markov with any
+// detection probability, so a rejection means spurious events, labels
+// shared by several edges, or hidden memory.
+//
+// StationarityTest compares P(l'|l) (G test of homogeneity) and the mean
+// gap (Welch's z) between the halves of each record, and both between
+// records (G test; Cochran's Q for the means).
+//
+// All p-values are for one test at a time; the estimates assume the records
+// are stationary and come from one process.
 package infer

@@ -283,7 +283,7 @@ func flExactWaitingKL(t testing.TB, net *models.Network) (wt float64, kl [2]floa
 }
 
 // flExactD returns the exact diffusion coefficient of the visible current,
-// D = lambda''(0)/2, by a central second difference of flSCGF with step
+// D = (d^2 lambda/dz^2 at z = 0)/2, by a central second difference of flSCGF with step
 // 1e-3 (truncation error ~1e-7 relative; finite differences as an oracle
 // only).
 func flExactD(t testing.TB, net *models.Network) float64 {

@@ -359,10 +359,14 @@ func fluctTimeBlocks(d *likelihood.Data, fw uint8, n, minEvents int) ([]fluctBlo
 		return nil, 0, 0
 	}
 	T := float64(n) * span / float64(events)
-	total := int(span / T)
+	total := 0
+	for r := range d.Records {
+		t0, t1 := fluctSpan(&d.Records[r])
+		total += int((t1 - t0) / T)
+	}
 	per := max(1, (minEvents+n-1)/n, (total+maxBlocks-1)/maxBlocks)
-	type win struct{ b, c int }
-	var wins []win
+	cs := make([]int32, 0, total) // window currents
+	wb := make([]int32, 0, total) // window blocks
 	var pairsBy [][2][2]int64
 	cmax := 0
 	nblock := 0
@@ -387,7 +391,8 @@ func fluctTimeBlocks(d *likelihood.Data, fw uint8, n, minEvents int) ([]fluctBlo
 					c--
 				}
 			}
-			wins = append(wins, win{base + w/per, c})
+			cs = append(cs, int32(c))
+			wb = append(wb, int32(base+w/per))
 			cmax = max(cmax, c, -c)
 		}
 		for k := 1; k < len(rec.Time); k++ {
@@ -399,8 +404,8 @@ func fluctTimeBlocks(d *likelihood.Data, fw uint8, n, minEvents int) ([]fluctBlo
 	for i := range blocks {
 		blocks[i] = fluctBlock{count: make([]int64, 2*cmax+1), pairs: pairsBy[i]}
 	}
-	for _, w := range wins {
-		blocks[w.b].count[w.c+cmax]++
+	for i, c := range cs {
+		blocks[wb[i]].count[int(c)+cmax]++
 	}
 	return blocks, T, cmax
 }
@@ -526,8 +531,11 @@ func fluctCompare(blocks []fluctBlock, slope, seSlope float64, pairs [2][2]int64
 	cmp.Diff = Estimate{Value: d, SE: math.NaN(), Lo: math.NaN(), Hi: math.NaN()}
 	if math.IsNaN(d) || math.IsInf(d, 0) {
 		cmp.Z = math.NaN()
-		cmp.Diff.Note = "slope or F undefined"
-		cmp.Verdict = "no verdict: slope or F undefined"
+		cmp.Verdict = "no verdict: F is infinite or undefined"
+		if math.IsNaN(slope) {
+			cmp.Verdict = "no verdict: no c > 0 has windows at both c and -c (windows too long for this F and amount of data)"
+		}
+		cmp.Diff.Note = cmp.Verdict
 		return cmp
 	}
 	if len(blocks) >= minBootBlocks && opt.Boot > 0 {

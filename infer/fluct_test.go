@@ -254,3 +254,28 @@ func TestFluctuationErrors(t *testing.T) {
 		}
 	}
 }
+
+// TestMultiEdgeLabelsBreakSymmetry: when "+" sits on two edges of a ring
+// (A->B and C->D, "-" on their reverses) the state after an event is not
+// known, the label sequence is not first-order Markov, and the
+// post-selected slope need not equal F (design section 7: linearity and
+// the slope fail for labels shared by several edges). Here it departs by
+// about 50% at n = 10 and 20 (z of 13 and 9 on 4e5 events); the test
+// requires |z| > 4, showing that the comparison has power, while at n = 5
+// this network happens to agree.
+func TestMultiEdgeLabelsBreakSymmetry(t *testing.T) {
+	net := flRing([]float64{3, 0.3, 0.4, 0.3}, []float64{0.5, 0.2, 2.5, 0.2})
+	net.Edges[2].Label = [2]int{0, 1}
+	d := flSimulate(t, net, 200000, 2, 3)
+	res, err := FluctuationTest(d, []int{10, 20}, FluctOptions{Seed: 1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, r := range res {
+		s := r.PostSelected
+		t.Logf("n=%d: F %.3f, post-selected slope %.3f +- %.3f, z %.1f", r.N, r.F.Value, s.Slope.Value, s.Slope.SE, s.Versus.Z)
+		if !(math.Abs(s.Versus.Z) > 4) || s.Versus.Agrees {
+			t.Errorf("n=%d: shared labels not detected: z = %.2f", r.N, s.Versus.Z)
+		}
+	}
+}

@@ -162,7 +162,7 @@ type Stationarity struct {
 func StationarityTest(d *likelihood.Data) Stationarity {
 	k := len(d.Labels)
 	var s Stationarity
-	var gm, gv []float64
+	var gm, gv []float64 // per record, mean and variance of its gaps
 	var gn []int
 	var all [][][]int
 	for i := range d.Records {
@@ -176,25 +176,26 @@ func StationarityTest(d *likelihood.Data) Stationarity {
 			c1[a] = make([]int, k)
 			c2[a] = make([]int, k)
 		}
-		var g1, g2 []float64
+		var g1, g2, gall moments
 		for j := 1; j < n; j++ {
 			gap := r.Time[j] - r.Time[j-1]
 			if j <= half {
 				c1[r.Label[j-1]][r.Label[j]]++
-				g1 = append(g1, gap)
+				g1.add(gap)
 			} else {
 				c2[r.Label[j-1]][r.Label[j]]++
-				g2 = append(g2, gap)
+				g2.add(gap)
 			}
+			gall.add(gap)
 		}
 		g, df, np := homogeneityG([][][]int{c1, c2})
 		rs.Next = TestResult{Stat: g, DF: df, P: chiSquareSF(g, df), N: np}
-		m1, v1 := meanVar(g1)
-		m2, v2 := meanVar(g2)
+		m1, v1 := g1.meanVar()
+		m2, v2 := g2.meanVar()
 		rs.MeanFirst, rs.MeanSecond = m1, m2
-		rs.MeanGap = TestResult{N: len(g1) + len(g2), DF: 1}
-		if len(g1) >= 2 && len(g2) >= 2 && v1+v2 > 0 {
-			z := (m1 - m2) / math.Sqrt(v1/float64(len(g1))+v2/float64(len(g2)))
+		rs.MeanGap = TestResult{N: g1.n + g2.n, DF: 1}
+		if g1.n >= 2 && g2.n >= 2 && v1+v2 > 0 {
+			z := (m1 - m2) / math.Sqrt(v1/float64(g1.n)+v2/float64(g2.n))
 			rs.MeanGap.Stat = z * z
 			rs.MeanGap.P = normalSF2(z)
 		} else {
@@ -215,8 +216,8 @@ func StationarityTest(d *likelihood.Data) Stationarity {
 			s.HalvesGap.N += rs.MeanGap.N
 		}
 		all = append(all, RecordTransitionCounts(r, k))
-		m, v := meanVar(append(g1, g2...))
-		gm, gv, gn = append(gm, m), append(gv, v), append(gn, len(g1)+len(g2))
+		m, v := gall.meanVar()
+		gm, gv, gn = append(gm, m), append(gv, v), append(gn, gall.n)
 	}
 	s.HalvesNext.P = chiSquareSF(s.HalvesNext.Stat, s.HalvesNext.DF)
 	s.HalvesGap.P = chiSquareSF(s.HalvesGap.Stat, s.HalvesGap.DF)

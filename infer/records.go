@@ -40,6 +40,10 @@ type ReadOptions struct {
 	// when the header has a tab and no comma), and from the extension
 	// (.tsv, .tab) when the header has neither.
 	Delimiter rune
+	// SizeHint is the input size in bytes when known, used only to size
+	// the event slices once; ReadRecords finds it itself when the reader
+	// is a regular file.
+	SizeHint int64
 }
 
 // ReadError is one problem in a records file, located by file, line and
@@ -146,8 +150,9 @@ func ReadFile(path string, opt ReadOptions) (*likelihood.Data, *ReadReport, erro
 // growth; the input is streamed line by line.
 func ReadRecords(r io.Reader, file string, opt ReadOptions) (*likelihood.Data, *ReadReport, error) {
 	p := newParser(r, file, opt)
+	p.size = opt.SizeHint
 	if st, ok := r.(interface{ Stat() (os.FileInfo, error) }); ok {
-		if fi, err := st.Stat(); err == nil && fi.Mode().IsRegular() {
+		if fi, err := st.Stat(); err == nil && fi.Mode().IsRegular() && p.size <= 0 {
 			p.size = fi.Size()
 		}
 	}

@@ -2,25 +2,14 @@ package infer
 
 import (
 	"math"
+	"math/rand/v2"
 	"slices"
 	"testing"
 
 	"edgewise/models"
 )
 
-// recBinom returns C(n, k) as a float64 (exact for the small values used).
-func recBinom(n, k int) float64 {
-	if k < 0 || k > n {
-		return 0
-	}
-	r := 1.0
-	for i := 1; i <= k; i++ {
-		r = r * float64(n-k+i) / float64(i)
-	}
-	return r
-}
-
-// TestKSExact checks the exact two-sample p-value two ways:
+// TestKSExact checks the exact two-sample p-value (up to n m = 10^6) two ways:
 //   - against brute force over all C(n+m, n) interleavings of the two
 //     samples (every one equally likely under the null), for small n, m;
 //   - for n = m, against the closed form of Gnedenko and Korolyuk (Dokl.
@@ -68,13 +57,25 @@ func TestKSExact(t *testing.T) {
 			}
 		}
 	}
-	for _, n := range []int{5, 10, 30, 100} {
+	lc := func(n, k int) float64 { // ln C(n, k)
+		a, _ := math.Lgamma(float64(n + 1))
+		b, _ := math.Lgamma(float64(k + 1))
+		c, _ := math.Lgamma(float64(n - k + 1))
+		return a - b - c
+	}
+	for _, n := range []int{5, 10, 30, 100, 1000} {
 		for k := 1; k <= n; k++ {
+			if n == 1000 && k%10 != 0 || k > 200 {
+				continue // each n = 1000 value costs 10^6 steps
+			}
 			want := 0.0
 			for j := 1; n-j*k >= 0; j++ {
-				want += 2 * math.Pow(-1, float64(j+1)) * recBinom(2*n, n-j*k) / recBinom(2*n, n)
+				want += 2 * math.Pow(-1, float64(j+1)) * math.Exp(lc(2*n, n-j*k)-lc(2*n, n))
 			}
-			got, _ := KSPValue(float64(k)/float64(n), n, n)
+			got, exact := KSPValue(float64(k)/float64(n), n, n)
+			if !exact {
+				continue // below 1e-10: the asymptotic value is used
+			}
 			if math.Abs(got-want) > 1e-9 {
 				t.Errorf("n=m=%d D=%d/%d: p %v, Gnedenko-Korolyuk %v", n, k, n, got, want)
 			}
@@ -119,8 +120,42 @@ func TestKolmogorovQ(t *testing.T) {
 			}
 		}
 	}
-	if _, exact := KSPValue(0.1, 101, 100); exact {
-		t.Error("n m > 10^4 should use the asymptotic form")
+	if _, exact := KSPValue(0.1, 1001, 1000); exact {
+		t.Error("n m > 10^6 should use the asymptotic form")
+	}
+	if p, exact := KSPValue(0.9, 50, 60); exact || !(p > 0 && p < 1e-10) {
+		t.Errorf("tiny p: %v exact %v, want the asymptotic value", p, exact)
+	}
+}
+
+// TestShapeBootstrapSize: the bootstrap calibration brings both tests to
+// their nominal size on identical shapes: over 200 replicates (1500 events
+// of a weakly driven ring, 99 resamples each) the rejection rate at 5%
+// must lie in the binomial 3-sigma band [0.004, 0.096] (the uncalibrated
+// tests reject about 1% and 0%, see TestShapeSize).
+func TestShapeBootstrapSize(t *testing.T) {
+	net := recRing([]float64{1.2, 0.9, 1.1, 1.0}, []float64{1.0, 1.0, 0.8, 1.1}, 1)
+	rej, rejAD := 0, 0
+	const reps = 200
+	for r := 0; r < reps; r++ {
+		d := recSimulate(t, net, uint64(700+r), 1, 1500)
+		res, err := ShapeTest(d, 0, 1, ShapeOptions{Bootstrap: 99, Seed: uint64(r)})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if res.PBoot <= 0.05 {
+			rej++
+		}
+		if res.ADPBoot <= 0.05 {
+			rejAD++
+		}
+	}
+	frac, fracAD := float64(rej)/reps, float64(rejAD)/reps
+	t.Logf("bootstrap-calibrated size at 5%%: KS %.3f, Anderson-Darling %.3f", frac, fracAD)
+	for _, f := range []float64{frac, fracAD} {
+		if f < 0.004 || f > 0.096 {
+			t.Errorf("calibrated size %.3f outside [0.004, 0.096]", f)
+		}
 	}
 }
 
@@ -131,7 +166,7 @@ func TestKolmogorovQ(t *testing.T) {
 // because each sample is scaled by its own mean; the size is logged.)
 func TestShapeSize(t *testing.T) {
 	net := recRing([]float64{1.2, 0.9, 1.1, 1.0}, []float64{1.0, 1.0, 0.8, 1.1}, 1)
-	rej := 0
+	rej, rejAD := 0, 0
 	const reps = 200
 	for r := 0; r < reps; r++ {
 		d := recSimulate(t, net, uint64(500+r), 1, 1500)
@@ -142,11 +177,14 @@ func TestShapeSize(t *testing.T) {
 		if res.P < 0.05 {
 			rej++
 		}
+		if res.AD.P < 0.05 {
+			rejAD++
+		}
 	}
-	frac := float64(rej) / reps
-	t.Logf("shape test size at 5%%: %.3f (%d of %d)", frac, rej, reps)
-	if frac > 0.096 {
-		t.Errorf("rejection rate %.3f on identical shapes", frac)
+	frac, fracAD := float64(rej)/reps, float64(rejAD)/reps
+	t.Logf("shape test size at 5%%: KS %.3f (%d of %d), Anderson-Darling %.3f", frac, rej, reps, fracAD)
+	if frac > 0.096 || fracAD > 0.096 {
+		t.Errorf("rejection rates %.3f (KS), %.3f (AD) on identical shapes", frac, fracAD)
 	}
 }
 
@@ -170,8 +208,9 @@ func recTwoCycle() *models.Network {
 
 // TestShapePower: the shapes differ when a driven cycle avoids the visible
 // edge, and when events are missed (p = 0.7 on the shipped ring); with
-// 10^5 events each must give p < 1e-3. A control on the same ring with
-// perfect detection must not (p > 1e-3; a false alarm has probability 1e-3).
+// 10^5 events each must give a KS p < 1e-3 and an Anderson-Darling p at
+// or below 0.01 (the end of its table). A control ring with perfect
+// detection must not (false alarms: probability 1e-3 and 0.01).
 func TestShapePower(t *testing.T) {
 	ring3 := recModel(t, "../testdata/ring3.toml")
 	missed := ring3.Clone()
@@ -185,13 +224,100 @@ func TestShapePower(t *testing.T) {
 		differ bool
 	}{{"cycle avoiding the edge", recTwoCycle(), true}, {"ring3, 30% missed", missed, true}, {"ring4, perfect detection", ring4, false}} {
 		d := recSimulate(t, c.net, 77, 1, 100000)
-		res, err := ShapeTest(d, 0, 1)
+		res, err := ShapeTest(d, 0, 1, ShapeOptions{Bootstrap: 99, Seed: 1})
 		if err != nil {
 			t.Fatal(err)
 		}
-		t.Logf("%s: N++ %d N-- %d D %.4f p %.3g", c.name, res.NPlus, res.NMinus, res.D, res.P)
+		if c.differ != (res.PBoot <= 0.01 && res.ADPBoot <= 0.01) {
+			t.Errorf("%s: bootstrap p-values %v, %v (smallest possible 0.01), want differ=%v", c.name, res.PBoot, res.ADPBoot, c.differ)
+		}
+		t.Logf("%s: N++ %d N-- %d D %.4f p %.3g; AD T %.2f p %s%.3g", c.name, res.NPlus, res.NMinus, res.D, res.P, res.AD.T, res.AD.PBound, res.AD.P)
 		if c.differ != (res.P < 1e-3) {
 			t.Errorf("%s: p = %.3g (D = %.4f), want differ=%v", c.name, res.P, res.D, c.differ)
 		}
+		if c.differ != (res.AD.P <= 0.01) {
+			t.Errorf("%s: Anderson-Darling p = %s%.3g (T = %.2f), want differ=%v", c.name, res.AD.PBound, res.AD.P, res.AD.T, c.differ)
+		}
+	}
+}
+
+// recADDirect computes A^2 from its integral form, sum_i n_i times the
+// integral of (F_i - H_N)^2 / (H_N (1 - H_N)) dH_N over the pooled sample
+// (Scholz and Stephens 1987, eq. 2), with each empirical distribution
+// function evaluated by binary search: a route independent of ADTest's
+// merge.
+func recADDirect(x, y []float64) float64 {
+	z := append(slices.Clone(x), y...)
+	slices.Sort(z)
+	N := float64(len(z))
+	cdf := func(s []float64, v float64) float64 {
+		i, _ := slices.BinarySearch(s, v)
+		for i < len(s) && s[i] <= v {
+			i++
+		}
+		return float64(i) / float64(len(s))
+	}
+	a := 0.0
+	for j := 0; j < len(z)-1; j++ {
+		h := float64(j+1) / N
+		for _, s := range [][]float64{x, y} {
+			f := cdf(s, z[j])
+			a += float64(len(s)) * (f - h) * (f - h) / (h * (1 - h)) / N
+		}
+	}
+	return a
+}
+
+// TestADTwoSample checks the Anderson-Darling statistic against its
+// integral form (1e-9 relative), the finite-N variance against the
+// asymptotic variance of A^2, 2(pi^2 - 9)/3 = 0.5797 (the one-sample
+// Anderson-Darling limit, which the k = 2 statistic shares; from memory),
+// and, by simulation, the mean 1 and variance sigma_N^2 at n = 30, 50
+// (10^4 replicates: the mean has SE 0.0075, tolerance 0.03 = 4 SE; the
+// variance of A^2 is heavy-tailed, its relative SE measured over seeds is
+// about 2.5%, tolerance 10%) and the
+// size of the test at 5% (2000 replicates, 3-sigma band [0.035, 0.065]).
+func TestADTwoSample(t *testing.T) {
+	rng := rand.New(rand.NewPCG(17, 18))
+	draw := func(n int) []float64 {
+		v := make([]float64, n)
+		for i := range v {
+			v[i] = rng.ExpFloat64()
+		}
+		slices.Sort(v)
+		return v
+	}
+	for _, nm := range [][2]int{{3, 4}, {10, 25}, {200, 150}} {
+		x, y := draw(nm[0]), draw(nm[1])
+		got, want := ADTest(x, y).A2, recADDirect(x, y)
+		if math.Abs(got-want) > 1e-9*want {
+			t.Errorf("n=%v: A2 %v, integral form %v", nm, got, want)
+		}
+	}
+	if v := adVariance(2000000, []int{1000000, 1000000}); math.Abs(v-2*(math.Pi*math.Pi-9)/3) > 1e-3 {
+		t.Errorf("large-N variance %v, want %v", v, 2*(math.Pi*math.Pi-9)/3)
+	}
+	var a2 []float64
+	for r := 0; r < 10000; r++ {
+		a2 = append(a2, ADTest(draw(30), draw(50)).A2)
+	}
+	m, v := meanVar(a2)
+	want := adVariance(80, []int{30, 50})
+	if math.Abs(m-1) > 0.03 || math.Abs(v/want-1) > 0.10 {
+		t.Errorf("A2 mean %v (want 1), variance %v (want %v)", m, v, want)
+	}
+	rej := 0
+	for r := 0; r < 2000; r++ {
+		if res := ADTest(draw(40), draw(60)); res.P < 0.05 {
+			rej++
+		}
+	}
+	frac := float64(rej) / 2000
+	t.Logf("A2 mean %.3f var %.3f (sigma_N^2 %.3f); size at 5%%: %.3f", m, v, want, frac)
+	if frac < 0.035 || frac > 0.065 {
+		t.Errorf("size %v", frac)
+	}
+	if p, b := adPValue(1.960); math.Abs(p-0.05) > 1e-12 || b != "" {
+		t.Errorf("table point: %v %q", p, b)
 	}
 }

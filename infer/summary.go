@@ -172,6 +172,13 @@ func (s *Summary) part(d *likelihood.Data, recs []likelihood.Record, opt Summary
 		return p
 	}
 	plus, minus := uint8(s.Plus), uint8(s.Minus)
+	if !(p.Duration > 0) {
+		nan := nanEstimate("", "zero observed time (every record is a single instant)")
+		p.Current, p.Activity, p.Diffusion, p.Fano = nan, nan, nan, nan
+		p.Window = math.NaN()
+		p.Affinity = EffectiveAffinity(sub, plus, minus, AffinityOptions{Level: opt.Level})
+		return p
+	}
 	ao := AffinityOptions{Level: opt.Level, Bootstrap: opt.Bootstrap, Seed: opt.Seed}
 	p.Affinity = EffectiveAffinity(sub, plus, minus, ao)
 	np, nm := after[plus], after[minus]

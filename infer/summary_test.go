@@ -171,3 +171,31 @@ func TestSummaryRing(t *testing.T) {
 	}
 	t.Logf("J %.4f (exact %.4f), D %.4f (exact %.4f), Fano %.4f (exact %.4f)", p.Current.Value, wantJ, p.Diffusion.Value, wantD, p.Fano.Value, wantFano)
 }
+
+// TestSummaryDegenerate: records of one event each have no observed time
+// and no pairs: the summary says so instead of printing numbers.
+func TestSummaryDegenerate(t *testing.T) {
+	d := &likelihood.Data{Labels: []string{"+", "-"}, Records: []likelihood.Record{
+		{ID: "a", Time: []float64{1}, Label: []uint8{0}, End: math.NaN()},
+		{ID: "b", Time: []float64{2}, Label: []uint8{1}, End: math.NaN()},
+	}}
+	s, err := Summarize(d, SummaryOptions{PerRecord: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	p := s.Pooled
+	if !math.IsNaN(p.Current.Value) || !strings.Contains(p.Current.Note, "zero observed time") || !math.IsNaN(p.Affinity.Value) || !math.IsNaN(p.Rates[0].Value) {
+		t.Errorf("got %+v", p)
+	}
+	if !math.IsNaN(p.Next[0][0].Value) || p.Gaps[0][0].N != 0 {
+		t.Errorf("pairs: %+v %+v", p.Next[0][0], p.Gaps[0][0])
+	}
+	if _, err := Summarize(&likelihood.Data{Labels: []string{"+"}}, SummaryOptions{}); err == nil {
+		t.Error("no error for empty data")
+	}
+	// Labels absent: single-edge quantities are skipped with a note.
+	s, _ = Summarize(d, SummaryOptions{Plus: "f", Minus: "b"})
+	if s.Plus != -1 || len(s.Notes) == 0 || !math.IsNaN(s.Pooled.Affinity.Value) {
+		t.Errorf("absent labels: %+v", s)
+	}
+}

@@ -168,7 +168,6 @@ type obsEntry struct {
 
 // obsWindow holds M_l restricted to the states that can follow an event.
 type obsWindow struct {
-	p        *Predictor
 	q        []int
 	qlo, qhi int
 	ns       int          // number of post-event states
@@ -178,7 +177,7 @@ type obsWindow struct {
 }
 
 func (p *Predictor) newWindow(q []int) *obsWindow {
-	w := &obsWindow{p: p, q: q, ns: len(p.support)}
+	w := &obsWindow{q: q, ns: len(p.support)}
 	for _, x := range q {
 		w.qlo, w.qhi = min(w.qlo, x), max(w.qhi, x)
 	}
@@ -234,6 +233,9 @@ func (w *obsWindow) run(n int, firsts []int) obsState {
 		clear(next[(lo+w.qlo-base)*w.ns : (hi+w.qhi-base+1)*w.ns])
 		for c := lo; c <= hi; c++ {
 			row := cur[(c-base)*w.ns : (c-base+1)*w.ns]
+			if obsZero(row) {
+				continue
+			}
 			for l, es := range w.ent {
 				out := next[(c+w.q[l]-base)*w.ns:]
 				for _, e := range es {

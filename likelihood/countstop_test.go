@@ -2,8 +2,11 @@ package likelihood
 
 import (
 	"math"
+	"math/rand/v2"
 	"strings"
 	"testing"
+
+	"edgewise/models"
 )
 
 // obsMarkovCases are single-edge-label cases: the label sequence is Markov.
@@ -20,15 +23,28 @@ func obsMarkovCases() []obsCase {
 // TestObsCountStoppedPostSelected: the exact post-selected count-stopped
 // law obeys ln[P_n(c)/P_n(-c)] = F c for every n = 2..200 (design.md
 // section 2: windows whose first label is the reverse of the last have no
-// boundary term), on a ring and on the two-cycle network whose second
-// driven cycle avoids the visible edge, with perfect detection, missed
-// events and a dead time (the label sequence stays Markov). Tolerance 1e-10
+// boundary term), on a ring, on the two-cycle network whose second
+// driven cycle avoids the visible edge, and on a random 7-state network
+// with five cycles, with perfect detection, missed events and a dead time
+// (the label sequence stays Markov). Tolerance 1e-10
 // absolute on the log-ratio wherever both probabilities exceed 1e-280: the
 // DP multiplies and adds at most 200 non-negative factors (relative error
 // ~200 eps ~ 4e-14) and F c is at most ~650.
 func TestObsCountStoppedPostSelected(t *testing.T) {
 	q := []int{1, -1}
-	for _, tc := range obsMarkovCases() {
+	cases := obsMarkovCases()
+	// A random 7-state network with several driven cycles, rates over two
+	// decades, 20% missed events and a dead time.
+	rng := rand.New(rand.NewPCG(3, 4))
+	rnd := &models.Network{States: []string{"A", "B", "C", "D", "E", "F", "G"}}
+	rate := func() float64 { return math.Pow(10, 2*rng.Float64()-1) }
+	for _, e := range [][2]int{{0, 1}, {1, 2}, {2, 3}, {3, 4}, {4, 5}, {5, 6}, {6, 0}, {1, 4}, {2, 6}, {3, 0}, {5, 2}} {
+		rnd.Edges = append(rnd.Edges, models.Edge{From: e[0], To: e[1], Rate: [2]float64{rate(), rate()}, Label: [2]int{models.Hidden, models.Hidden}})
+	}
+	rnd.Edges[0].Label = [2]int{0, 1}
+	rnd.Labels = []models.Label{{Name: "+", Detect: 0.8}, {Name: "-", Detect: 0.8}}
+	cases = append(cases, obsCase{"random 7-state", rnd, 0.05})
+	for _, tc := range cases {
 		p := obsPredictor(t, tc.net, tc.delta)
 		F := p.EffectiveAffinity(0, 1)
 		checked, worst := 0, 0.0

@@ -217,7 +217,8 @@ func (e *Evaluator) forwardGradStep(ws *work, rec *Record, alpha, beta []float64
 		copy(x, alpha)
 	}
 	zv := ws.alpha2
-	if err := e.propRow(ws, zv, x, st.lo, st.hi, true); err != nil {
+	shift, err := e.propRow(ws, zv, x, st.lo, st.hi, true)
+	if err != nil {
 		return err
 	}
 	b := ws.b
@@ -317,7 +318,7 @@ func (e *Evaluator) forwardGradStep(ws *work, rec *Record, alpha, beta []float64
 	if !(cs > 0) || cs > math.MaxFloat64 {
 		return impossible(rec, st.k, "density", cs)
 	}
-	acc.ll += math.Log(cs)
+	acc.ll += math.Log(cs) + shift
 	for i := range alpha {
 		alpha[i] /= cs
 	}
@@ -331,7 +332,13 @@ func (e *Evaluator) forwardGradStep(ws *work, rec *Record, alpha, beta []float64
 // over t, from the (1,3) block of a 3x3 block exponential.
 func (e *Evaluator) flushVanLoan(ws *work) error {
 	for key, xv := range ws.vl {
-		k := vanLoan(e.k.D0, xv, key[0], key[1])
+		// Exact times: X was accumulated with the shifted factor c e^{-s t},
+		// so the block exponential uses the shifted D0 - s I as well.
+		a := e.k.D0
+		if key[0] == key[1] {
+			a = e.d0s
+		}
+		k := vanLoan(a, xv, key[0], key[1])
 		for i, v := range k {
 			if math.IsNaN(v) {
 				return errors.New("likelihood: Van Loan block exponential failed")

@@ -144,3 +144,94 @@ func TestGradientFiniteDifferences(t *testing.T) {
 		})
 	}
 }
+
+// TestModelGradient: the model-level gradient (chain rule through
+// models.Model.Jacobian) against central finite differences in the free
+// parameters x, to 1e-6 relative (same error budget as
+// TestGradientFiniteDifferences). Models: ring3 (a fixed rate) with its
+// shipped records, and shared-label (labels on two edges, a free
+// detection probability shared by both labels) with simulated records.
+func TestModelGradient(t *testing.T) {
+	ring := coreLoadModel(t, "../testdata/ring3.toml")
+	shared := coreLoadModel(t, "../testdata/shared-label.toml")
+	snet, err := shared.Network(shared.Start())
+	if err != nil {
+		t.Fatal(err)
+	}
+	cases := []struct {
+		m   *models.Model
+		d   *Data
+		opt Options
+	}{
+		{ring, coreReadCSV(t, "../testdata/likelihood/ring3-300.csv"), Options{}},
+		{ring, coreReadCSV(t, "../testdata/likelihood/ring3-300.csv"), Options{Path: PathGeneral, Instrument: Instrument{DeadTime: 0.001}}},
+		{shared, coreSimulate(t, snet, 3, 2, 150, 0.01), Options{Instrument: Instrument{DeadTime: 0.01}}},
+	}
+	for _, c := range cases {
+		m, d, opt := c.m, c.d, c.opt
+		x := m.Start()
+		ll, g, err := ModelLogLikGrad(m, x, d, opt)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if len(g) != len(x) {
+			t.Fatalf("gradient has %d entries for %d free parameters", len(g), len(x))
+		}
+		for j := range x {
+			f := func(h float64) float64 {
+				y := append([]float64(nil), x...)
+				y[j] *= math.Exp(h)
+				v, err := ModelLogLik(m, y, d, opt)
+				if err != nil {
+					t.Fatal(err)
+				}
+				return v
+			}
+			cd := func(h float64) float64 { return (f(h) - f(-h)) / (2 * h) }
+			fd := (4*cd(5e-4) - cd(1e-3)) / 3 / x[j] // d/dx = d/d ln x / x
+			if math.Abs(g[j]-fd) > 1e-6*math.Max(math.Abs(fd), 1) {
+				t.Errorf("%s: d lnL/d x[%d] (%s) = %.12g, finite differences %.12g (ln L %g)", m.Name, j, m.Free()[j], g[j], fd, ll)
+			}
+		}
+	}
+}
+
+// TestLongGap: a gap thousands of mean waiting times long does not
+// underflow on the spectral route (exp(D0 t) is carried as e^{lmax t}
+// times a bounded matrix); fast and general paths agree on it, and its
+// ln psi is close to the asymptote lmax t + const (checked by the
+// difference of two long gaps, which must be lmax times their difference
+// to 1e-9 relative: the subdominant modes have decayed by e^{-1000}).
+func TestLongGap(t *testing.T) {
+	rng := rand.New(rand.NewPCG(30, 31))
+	net := coreRandomNet(rng, 4, 1, 1, 1)
+	ev, err := NewNetworkEvaluator(net, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	lmax := ev.sp.lmax
+	t1, t2 := 3000/-lmax, 5000/-lmax
+	mk := func(gap float64) *Data {
+		return &Data{Labels: []string{"+", "-"}, Records: []Record{{ID: "long", Time: []float64{0, gap}, Label: []uint8{0, 0}, End: math.NaN()}}}
+	}
+	var vals [2]float64
+	for i, gap := range []float64{t1, t2} {
+		for _, path := range []PathMode{PathFast, PathGeneral} {
+			ll, err := LogLik(net, mk(gap), Options{Path: path})
+			if err != nil {
+				t.Fatalf("gap %g: %v", gap, err)
+			}
+			if math.IsInf(ll, 0) || math.IsNaN(ll) {
+				t.Fatalf("gap %g: ln L = %v", gap, ll)
+			}
+			if path == PathFast {
+				vals[i] = ll
+			} else if coreRelErr(ll, vals[i], 1) > 1e-12 {
+				t.Errorf("gap %g: general %.15g, fast %.15g", gap, ll, vals[i])
+			}
+		}
+	}
+	if got, want := vals[1]-vals[0], lmax*(t2-t1); coreRelErr(got, want, 1) > 1e-9 {
+		t.Errorf("ln psi(t2) - ln psi(t1) = %.15g, want lmax (t2 - t1) = %.15g", got, want)
+	}
+}

@@ -17,7 +17,10 @@ type Instrument struct {
 	// Frame > 0 (time units) when timestamps are frame-limited: each
 	// timestamp is the start of the frame the event fell in, so a gap is
 	// known only to lie in a frame interval, and the likelihood integrates
-	// exp(D0 t) over that interval exactly. Zero means exact timestamps.
+	// exp(D0 t) over that interval exactly. A reported gap g is read as
+	// "the true gap lies in [max(g - Frame/2, 0), g + Frame/2]" (see the
+	// package documentation for why, and for the approximation this
+	// makes). Zero means exact timestamps.
 	Frame float64
 }
 

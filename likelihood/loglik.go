@@ -72,13 +72,18 @@ type Evaluator struct {
 	n, nl int
 	prop  *Propagator
 	sp    *spectral // non-nil when the spectral route is in use
-	d0    []float64 // D0 row-major
+	// Dense route: exp(D0 t) for exact times is evaluated as
+	// e^{dshift t} exp((D0 - dshift I) t), dshift an estimate of the Perron
+	// eigenvalue of D0, so that long gaps do not underflow.
+	dshift float64
+	d0s    *mat.Dense
+	dprop  *Propagator
 	delta float64
 	frame float64
-	g     []float64 // exp(L delta) row-major, nil without dead time
-	pi    []float64 // stationary law of L
-	nu    []float64 // stationary post-event law (sum 1)
-	w0    []float64 // nu G A: the pre-D law of the first event (StartFirstEvent)
+	g     []float64  // exp(L delta) row-major, nil without dead time
+	pi    []float64  // stationary law of L
+	nu    []float64  // stationary post-event law (sum 1)
+	w0    []float64  // nu G A: the pre-D law of the first event (StartFirstEvent)
 	amat  *mat.Dense // A = (-D0)^{-1}
 	kmat  *mat.Dense // K = G A D, the post-event chain
 	dsp   [][]dEntry
@@ -88,9 +93,16 @@ type Evaluator struct {
 	// b = next label (nl: the censored end).
 	from, to []int
 	pw       []float64
-	cf       [][]float64    // [pair] f = dot(cf, z)
-	ahat     [][]complex128 // [a] V^T a
-	bhat     [][]complex128 // [b] V^{-1} b
+	cf       [][]float64 // [pair] f = dot(cf, z)
+	// Hot-loop tables: f = hc0[p] + sum_i hc[p][i] e^{hmu[i] tau} + pair terms,
+	// hmu the real eigenvalues minus lmax without the Perron one (whose
+	// term is the constant hc0).
+	hmu  []float64
+	hidx []int
+	hc0  []float64
+	hc   [][]float64
+	ahat [][]complex128 // [a] V^T a
+	bhat [][]complex128 // [b] V^{-1} b
 }
 
 type dEntry struct {
@@ -112,7 +124,6 @@ func NewEvaluator(k *Kernels, opt Options) (*Evaluator, error) {
 	}
 	n, nl := k.N, len(k.D)
 	e := &Evaluator{k: k, opt: opt, n: n, nl: nl, delta: opt.Instrument.DeadTime, frame: opt.Instrument.Frame}
-	e.d0 = append([]float64(nil), k.D0.RawMatrix().Data...)
 	prop, err := NewPropagator(k.D0, opt.Method)
 	if err != nil {
 		return nil, err
@@ -120,6 +131,8 @@ func NewEvaluator(k *Kernels, opt Options) (*Evaluator, error) {
 	e.prop = prop
 	if prop.Method() == ExpSpectral {
 		e.sp = prop.spec
+	} else if err := e.denseShift(); err != nil {
+		return nil, err
 	}
 	pi, err := k.net.Stationary()
 	if err != nil {
@@ -166,6 +179,36 @@ func NewEvaluator(k *Kernels, opt Options) (*Evaluator, error) {
 		e.fastTables()
 	}
 	return e, nil
+}
+
+// denseShift prepares the shifted matrix D0 - s I of the dense route, s
+// the largest real part of an eigenvalue of D0 (clamped at 0). The
+// eigenvalues of a defective matrix are perturbed by rounding, but any s
+// near the Perron eigenvalue keeps exp((D0 - s I) t) bounded.
+func (e *Evaluator) denseShift() error {
+	var eig mat.Eigen
+	s := 0.0
+	if eig.Factorize(e.k.D0, mat.EigenNone) {
+		s = math.Inf(-1)
+		for _, v := range eig.Values(nil) {
+			s = math.Max(s, real(v))
+		}
+		s = math.Min(s, 0)
+		if math.IsInf(s, 0) || math.IsNaN(s) {
+			s = 0
+		}
+	}
+	e.dshift = s
+	e.d0s = mat.DenseCopyOf(e.k.D0)
+	for i := 0; i < e.n; i++ {
+		e.d0s.Set(i, i, e.d0s.At(i, i)-s)
+	}
+	p, err := NewPropagator(e.d0s, e.prop.Method())
+	if err != nil {
+		return err
+	}
+	e.dprop = p
+	return nil
 }
 
 // NewNetworkEvaluator builds the kernels of net and an Evaluator.
@@ -307,6 +350,25 @@ func (e *Evaluator) fastTables() {
 				}
 			}
 			e.cf[a*(nl+1)+b] = c
+		}
+	}
+	kmax := -1
+	for _, r := range s.reals {
+		if kmax < 0 && r.lam == s.lmax {
+			kmax = r.k
+			continue
+		}
+		e.hmu = append(e.hmu, r.lam-s.lmax)
+		e.hidx = append(e.hidx, r.k)
+	}
+	e.hc0 = make([]float64, len(e.cf))
+	e.hc = make([][]float64, len(e.cf))
+	for p, c := range e.cf {
+		if kmax >= 0 {
+			e.hc0[p] = c[kmax]
+		}
+		for _, k := range e.hidx {
+			e.hc[p] = append(e.hc[p], c[k])
 		}
 	}
 	e.ahat = make([][]complex128, nl+1)
@@ -470,6 +532,9 @@ func (e *Evaluator) run(d *Data, grad bool) (*accum, error) {
 		}
 		if len(rec.Label) != len(rec.Time) {
 			return nil, fmt.Errorf("likelihood: record %q has %d times and %d labels", rec.ID, len(rec.Time), len(rec.Label))
+		}
+		if t := rec.Time[0]; math.IsNaN(t) || math.IsInf(t, 0) {
+			return nil, fmt.Errorf("likelihood: record %q event 1: time %v is not finite", rec.ID, t)
 		}
 	}
 	its := e.items(d)
@@ -636,6 +701,8 @@ func gapError(rec *Record, k int, g float64, delta float64) error {
 	switch {
 	case math.IsNaN(t) || math.IsInf(t, 0):
 		return fmt.Errorf("likelihood: record %q event %d: time %v is not finite", rec.ID, k+1, t)
+	case k > 0 && (math.IsNaN(rec.Time[k-1]) || math.IsInf(rec.Time[k-1], 0)):
+		return fmt.Errorf("likelihood: record %q event %d: time %v is not finite", rec.ID, k, rec.Time[k-1])
 	case g < 0:
 		return fmt.Errorf("likelihood: record %q event %d: time %v is before the previous event (%v)", rec.ID, k+1, t, t-g)
 	}
@@ -659,6 +726,7 @@ type work struct {
 	ck, buf             []float64 // checkpoints and segment buffer of backward vectors
 	emat                *mat.Dense
 	cache               map[[2]float64][]float64 // dense route: interval -> matrix
+	ccache              map[[2]float64][]float64 // spectral route, frames: interval -> z, dz, shift
 	vl                  map[[2]float64][]float64 // dense route: interval -> sum a b^T / c
 }
 
@@ -668,6 +736,9 @@ func (e *Evaluator) newWork(grad bool) *work {
 	w := &work{z: f(), dz: f(), u: f(), u0: f(), x: f(), y: f(), b: f(), v: f(),
 		alpha: f(), alpha2: f(), beta: f(),
 		ah: make([]complex128, n), bh: make([]complex128, n), zh: make([]complex128, n), dh: make([]complex128, n)}
+	if e.sp != nil && e.frame > 0 {
+		w.ccache = map[[2]float64][]float64{}
+	}
 	if e.sp == nil {
 		w.emat = mat.NewDense(n, n, nil)
 		w.cache = map[[2]float64][]float64{}
@@ -686,7 +757,10 @@ const (
 
 // fastSegment handles events [k0, k1) of record sg.r on the fast path: the
 // pair factors psi(tau_k) for k in [max(k0, 1), k1), plus the stationary
-// start when k0 == 0 and the censored end when k1 == n.
+// start when k0 == 0 and the censored end when k1 == n. The running
+// product of the (shifted) factors is kept as a mantissa rescaled by
+// powers of two, and the shifts lmax tau are summed, so that the loop
+// takes no logarithm.
 func (e *Evaluator) fastSegment(ws *work, d *Data, lm *[256]int16, sg segment) error {
 	rec := &d.Records[sg.r]
 	acc := ws.acc
@@ -696,19 +770,10 @@ func (e *Evaluator) fastSegment(ws *work, d *Data, lm *[256]int16, sg segment) e
 	z, dz := ws.z, ws.dz
 	grad := acc.grad
 	tm, lb := rec.Time, rec.Label
-	mant, ex := 1.0, 0
+	mant, ex, shift := 1.0, 0, 0.0
+	// step multiplies in the factor of one pair with the interval [lo, hi].
 	step := func(k, pair int, lo, hi float64) error {
-		if lo == hi {
-			if grad {
-				s.coefExact(lo, z, dz)
-			} else {
-				s.coefExact(lo, z, nil)
-			}
-		} else if grad {
-			s.coefInterval(lo, hi, z, dz)
-		} else {
-			s.coefInterval(lo, hi, z, nil)
-		}
+		shift += e.coefs(ws, lo, hi, grad)
 		c := e.cf[pair]
 		f := 0.0
 		for i, v := range c {
@@ -745,6 +810,9 @@ func (e *Evaluator) fastSegment(ws *work, d *Data, lm *[256]int16, sg segment) e
 		if err != nil {
 			return err
 		}
+		if !(e.w0[e.from[l]] > 0) {
+			return impossible(rec, 0, "first-event probability", e.w0[e.from[l]])
+		}
 		if e.opt.Start == StartStationary {
 			g := tm[0]
 			lo, hi, ok := e.interval(g, false)
@@ -759,15 +827,57 @@ func (e *Evaluator) fastSegment(ws *work, d *Data, lm *[256]int16, sg segment) e
 			}
 		}
 	}
-	prev := -1
-	if k := max(sg.k0, 1); k <= n {
+	prev := 0
+	k := max(sg.k0, 1)
+	if k <= n {
 		p, err := label(k - 1)
 		if err != nil {
 			return err
 		}
 		prev = p
 	}
-	for k := max(sg.k0, 1); k < sg.k1; k++ {
+	if !grad && e.frame == 0 {
+		// Hot loop: exact timestamps, value only. psi = e^{shift} (sum over
+		// real eigenvalues c_k e^{(l_k - lmax) tau} + sum over pairs
+		// e^{(a - lmax) tau} (c_k cos(b tau) + c_{k+1} sin(b tau))).
+		pairs, lmx, delta, hmu := s.pairs, s.lmax, e.delta, e.hmu
+		sumTau := 0.0
+		for ; k < sg.k1; k++ {
+			l := int(lm[lb[k]])
+			if l < 0 {
+				_, err := label(k)
+				return err
+			}
+			g := tm[k] - tm[k-1]
+			tau := g - delta
+			if !(tau >= 0) || tau > math.MaxFloat64 {
+				return gapError(rec, k, g, delta)
+			}
+			pr := prev*np1 + l
+			f := e.hc0[pr]
+			hc := e.hc[pr][:len(hmu)]
+			for i, mu := range hmu {
+				f += hc[i] * math.Exp(mu*tau)
+			}
+			c := e.cf[pr]
+			for _, p := range pairs {
+				sn, cs := math.Sincos(p.b * tau)
+				f += math.Exp((p.a-lmx)*tau) * (c[p.k]*cs + c[p.k+1]*sn)
+			}
+			if !(f > 0) || f > math.MaxFloat64 {
+				return impossible(rec, k, "density", f)
+			}
+			mant *= f
+			if mant < prodLow || mant > prodHigh {
+				fr, xe := math.Frexp(mant)
+				mant, ex = fr, ex+xe
+			}
+			sumTau += tau
+			prev = l
+		}
+		shift += lmx * sumTau
+	}
+	for ; k < sg.k1; k++ {
 		l := int(lm[lb[k]])
 		if l < 0 {
 			_, err := label(k)
@@ -802,7 +912,7 @@ func (e *Evaluator) fastSegment(ws *work, d *Data, lm *[256]int16, sg segment) e
 		}
 	}
 	fr, xe := math.Frexp(mant)
-	acc.lmant += math.Log(fr) + float64(ex+xe)*math.Ln2
+	acc.lmant += math.Log(fr) + float64(ex+xe)*math.Ln2 + shift
 	return nil
 }
 
@@ -866,33 +976,70 @@ func (e *Evaluator) generalSteps(rec *Record, lm *[256]int16, nLab int) (int, fu
 	return steps, info, nil
 }
 
+// coefCacheMax bounds the spectral route's per-goroutine cache of frame
+// interval coefficients.
+const coefCacheMax = 1 << 16
+
+// coefs fills ws.z (and ws.dz when wantD) with the spectral block
+// coefficients of the interval [lo, hi] (lo == hi: exact time) and returns
+// the shift. Frame intervals repeat, so they are cached by exact value:
+// each costs N complex exponentials, more than a map lookup.
+func (e *Evaluator) coefs(ws *work, lo, hi float64, wantD bool) float64 {
+	s := e.sp
+	var dz []float64
+	if wantD {
+		dz = ws.dz
+	}
+	if lo == hi {
+		return s.coefExact(lo, ws.z, dz)
+	}
+	if ws.ccache == nil {
+		return s.coefInterval(lo, hi, ws.z, dz)
+	}
+	n := e.n
+	key := [2]float64{lo, hi}
+	c, ok := ws.ccache[key]
+	if !ok {
+		c = make([]float64, 2*n+1)
+		c[2*n] = s.coefInterval(lo, hi, c[:n], c[n:2*n])
+		if len(ws.ccache) >= coefCacheMax {
+			clear(ws.ccache)
+		}
+		ws.ccache[key] = c
+	}
+	copy(ws.z, c[:n])
+	if wantD {
+		copy(ws.dz, c[n:2*n])
+	}
+	return c[2*n]
+}
+
 // propRow sets out = x E(lo, hi) where E is exp(D0 t) (lo == hi) or the
 // integral over [lo, hi]. On the spectral route it leaves x W in ws.u0 and
 // the block coefficients in ws.z (and ws.dz when wantD).
-func (e *Evaluator) propRow(ws *work, out, x []float64, lo, hi float64, wantD bool) error {
+//
+// The result is scaled by e^{-shift} (spectral route: shift = lmax t, so
+// that long gaps do not underflow; dense route: shift = 0); the caller adds
+// shift to ln L.
+func (e *Evaluator) propRow(ws *work, out, x []float64, lo, hi float64, wantD bool) (shift float64, err error) {
 	n := e.n
 	if s := e.sp; s != nil {
-		var dz []float64
-		if wantD {
-			dz = ws.dz
-		}
-		if lo == hi {
-			s.coefExact(lo, ws.z, dz)
-		} else {
-			s.coefInterval(lo, hi, ws.z, dz)
-		}
+		shift = e.coefs(ws, lo, hi, wantD)
 		rowTimes(ws.u0, x, s.w, n)
 		copy(ws.u, ws.u0)
 		s.rowBlock(ws.u, ws.z)
 		rowTimes(out, ws.u, s.wi, n)
-		return nil
+		return shift, nil
 	}
 	m, err := e.denseE(ws, lo, hi)
 	if err != nil {
-		return err
+		return 0, err
 	}
 	rowTimes(out, x, m, n)
-	return nil
+	if lo == hi {
+		return e.dshift * lo, nil
+	}
+	return 0, nil
 }
 
 // propCol sets out = E(lo, hi) b. On the spectral route it leaves
@@ -902,11 +1049,7 @@ func (e *Evaluator) propCol(ws *work, out, b []float64, lo, hi float64, haveZ bo
 	n := e.n
 	if s := e.sp; s != nil {
 		if !haveZ {
-			if lo == hi {
-				s.coefExact(lo, ws.z, nil)
-			} else {
-				s.coefInterval(lo, hi, ws.z, nil)
-			}
+			e.coefs(ws, lo, hi, false)
 		}
 		timesCol(ws.v, s.wi, b, n)
 		copy(ws.y, ws.v)
@@ -926,7 +1069,9 @@ func (e *Evaluator) propCol(ws *work, out, b []float64, lo, hi float64, haveZ bo
 // exponentials by interval (camera-frame data repeat a few values).
 const denseCacheMax = 4096
 
-// denseE returns E(lo, hi) on the dense route, cached by exact interval.
+// denseE returns E(lo, hi) on the dense route, cached by exact interval:
+// for an exact time t (lo == hi) the shifted exp((D0 - dshift I) t), to
+// be multiplied by e^{dshift t}; for an interval the integral itself.
 func (e *Evaluator) denseE(ws *work, lo, hi float64) ([]float64, error) {
 	key := [2]float64{lo, hi}
 	if m, ok := ws.cache[key]; ok {
@@ -934,7 +1079,7 @@ func (e *Evaluator) denseE(ws *work, lo, hi float64) ([]float64, error) {
 	}
 	var err error
 	if lo == hi {
-		err = e.prop.Exp(ws.emat, lo)
+		err = e.dprop.Exp(ws.emat, lo)
 	} else {
 		err = e.prop.Integral(ws.emat, lo, hi)
 	}
@@ -1037,7 +1182,8 @@ func (e *Evaluator) generalRecord(ws *work, d *Data, lm *[256]int16, r int) erro
 		} else {
 			copy(x, alpha)
 		}
-		if err := e.propRow(ws, tmp, x, st.lo, st.hi, false); err != nil {
+		shift, err := e.propRow(ws, tmp, x, st.lo, st.hi, false)
+		if err != nil {
 			return err
 		}
 		e.applyDRow(alpha, tmp, st.lab)
@@ -1045,7 +1191,7 @@ func (e *Evaluator) generalRecord(ws *work, d *Data, lm *[256]int16, r int) erro
 		if !(c > 0) || c > math.MaxFloat64 {
 			return impossible(rec, st.k, "density", c)
 		}
-		acc.ll += math.Log(c)
+		acc.ll += math.Log(c) + shift
 		for i := range alpha {
 			alpha[i] /= c
 		}

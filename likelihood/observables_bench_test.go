@@ -55,3 +55,16 @@ func BenchmarkNewPredictor(b *testing.B) {
 		}
 	}
 }
+
+// BenchmarkFixedTimeDeadTime: as BenchmarkFixedTime with 30% missed events
+// and a dead time of 0.1 (about 5% of the mean gap).
+func BenchmarkFixedTimeDeadTime(b *testing.B) {
+	p := obsPredictor(b, obsTwoCycle(0.7), 0.1)
+	q := []int{1, -1}
+	b.ResetTimer()
+	for i := 0; i < b.N; i++ {
+		if _, err := p.FixedTime(50, q); err != nil {
+			b.Fatal(err)
+		}
+	}
+}

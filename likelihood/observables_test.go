@@ -8,6 +8,7 @@ import (
 	"edgewise/models"
 
 	"gonum.org/v1/gonum/mat"
+	"gonum.org/v1/gonum/stat/distuv"
 )
 
 // obsMultiEdge is a 4-state ring whose label "+" sits on two directed edges
@@ -151,11 +152,14 @@ func TestObsRingEffectiveAffinity(t *testing.T) {
 
 // TestObsIrreversibleRing: a totally irreversible ring of N = 5 states, all
 // rates k = 2: psi_{+->+} is the Erlang(N) density k^N t^{N-1} e^{-kt}/(N-1)!
-// (design.md section 8; compared with the Erlang moments N/k and
+// (design.md section 8; gonum distuv.Gamma with shape N and rate k;
+// compared with the Erlang moments N/k and
 // N(N+1)/k^2), P(+|+) = 1 and F = +Inf because "-" never occurs. Relative
 // tolerance 1e-9 on the density: gonum's Pade exponential of a 5 x 5
 // matrix with norm 4 t is accurate to ~1e-13 relative to its norm, and the
-// density is compared only where it is above 1e-6 of its peak. The mirror
+// density is compared only where it is above 1e-6 of its peak; unequal
+// rates give the hypoexponential density (same tolerance; the closed form
+// has cancellation below 1e-6, where it is not compared). The mirror
 // ring gives F = -Inf, and a two-state edge (P(+|+) = P(-|-) = 0) NaN.
 func TestObsIrreversibleRing(t *testing.T) {
 	const N, k = 5, 2.0
@@ -176,9 +180,10 @@ func TestObsIrreversibleRing(t *testing.T) {
 		ts[i] = 0.05 * float64(i)
 	}
 	got := p.Psi(0, 0, ts)
-	peak := math.Pow(k, N) * math.Pow((N-1)/k, N-1) * math.Exp(-(N - 1)) / 24
+	erlang := distuv.Gamma{Alpha: N, Beta: k} // shape N, rate k
+	peak := erlang.Prob((N - 1) / k)          // the mode
 	for i, x := range ts {
-		want := math.Pow(k, N) * math.Pow(x, N-1) * math.Exp(-k*x) / 24 // (N-1)! = 24
+		want := erlang.Prob(x)
 		if want < 1e-6*peak {
 			continue
 		}
@@ -189,6 +194,26 @@ func TestObsIrreversibleRing(t *testing.T) {
 	m1, m2 := p.PsiMoments(0, 0)
 	if !obsClose(m1, N/k, 1e-12, 0) || !obsClose(m2, N*(N+1)/(k*k), 1e-12, 0) {
 		t.Errorf("moments %g %g, Erlang %g %g", m1, m2, N/k, N*(N+1)/(k*k))
+	}
+	// Unequal rates k_i: the hypoexponential density
+	// sum_i k_i e^{-k_i t} prod_{j != i} k_j / (k_j - k_i) (design.md section 8).
+	ks := []float64{1, 2.5, 4, 0.7}
+	hypo := obsRing(ks, make([]float64, len(ks)), 1)
+	hp := obsPredictor(t, hypo, 0).Psi(0, 0, ts)
+	for i, x := range ts {
+		want := 0.0
+		for a := range ks {
+			term := ks[a] * math.Exp(-ks[a]*x)
+			for b := range ks {
+				if b != a {
+					term *= ks[b] / (ks[b] - ks[a])
+				}
+			}
+			want += term
+		}
+		if want > 1e-6 && !obsClose(hp[i], want, 1e-9, 0) {
+			t.Errorf("hypoexponential psi(%g) = %.15g, want %.15g", x, hp[i], want)
+		}
 	}
 	// Mirror image: the ring runs backwards only, "+" never occurs, F = -Inf.
 	back := obsRing(w, u, 1)
@@ -448,8 +473,11 @@ func TestObsErrors(t *testing.T) {
 	if _, err := p.CountStopped(1, []int{1, -1}, true); err == nil {
 		t.Error("post-selection with n = 1 accepted")
 	}
-	if _, err := p.FixedTime(1, []int{1, -1}); err == nil {
-		t.Error("fixed-time law with dead time: want an error (not provided)")
+	if _, err := p.FixedTime(math.NaN(), []int{1, -1}); err == nil {
+		t.Error("NaN time accepted")
+	}
+	if _, err := p.FixedTime(1, []int{1}); err == nil {
+		t.Error("fixed-time law: short weight vector accepted")
 	}
 	p0 := obsPredictor(t, net, 0)
 	if _, err := p0.FixedTime(-1, []int{1, -1}); err == nil {

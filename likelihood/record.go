@@ -1,5 +1,10 @@
 package likelihood
 
+import (
+	"fmt"
+	"math"
+)
+
 // Record is one uninterrupted observation: visible events in time order.
 //
 // Times are in the same unit as the model's rates (rate = 1/time). Labels are
@@ -31,4 +36,40 @@ func (d *Data) Events() int {
 		n += len(d.Records[i].Time)
 	}
 	return n
+}
+
+// Validate checks d without evaluating a model: at least one record, no
+// empty record, equal numbers of times and labels, finite non-decreasing
+// times, label indices inside the label table, and an End (when known)
+// that is finite and not before the last event. Errors name the record
+// and the event (1-based). The likelihood makes the same checks as it
+// goes.
+func (d *Data) Validate() error {
+	if len(d.Records) == 0 {
+		return fmt.Errorf("likelihood: data set has no records")
+	}
+	for r := range d.Records {
+		rec := &d.Records[r]
+		if rec.Len() == 0 {
+			return fmt.Errorf("likelihood: record %q is empty", rec.ID)
+		}
+		if len(rec.Label) != len(rec.Time) {
+			return fmt.Errorf("likelihood: record %q has %d times and %d labels", rec.ID, len(rec.Time), len(rec.Label))
+		}
+		for k, t := range rec.Time {
+			if math.IsNaN(t) || math.IsInf(t, 0) {
+				return fmt.Errorf("likelihood: record %q event %d: time %v is not finite", rec.ID, k+1, t)
+			}
+			if k > 0 && t < rec.Time[k-1] {
+				return fmt.Errorf("likelihood: record %q event %d: time %v is before the previous event (%v)", rec.ID, k+1, t, rec.Time[k-1])
+			}
+			if int(rec.Label[k]) >= len(d.Labels) {
+				return fmt.Errorf("likelihood: record %q event %d: label index %d is not in the label table (%d labels)", rec.ID, k+1, rec.Label[k], len(d.Labels))
+			}
+		}
+		if !math.IsNaN(rec.End) && (math.IsInf(rec.End, 0) || rec.End < rec.Time[len(rec.Time)-1]) {
+			return fmt.Errorf("likelihood: record %q: end %v is before the last event (%v) or not finite", rec.ID, rec.End, rec.Time[len(rec.Time)-1])
+		}
+	}
+	return nil
 }

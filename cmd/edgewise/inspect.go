@@ -48,7 +48,7 @@ Options:
 
 func cmdInspect(args []string, stdout, stderr io.Writer) int {
 	fs := newFlags("inspect", inspectHelp, args, stdout, stderr)
-	format := fs.StringP("format", "f", "table", "output format: table, markdown, csv or json")
+	format := fs.StringP("format", "f", "table", "output format: "+formats)
 	labels := fs.String("labels", "", "rename file labels, e.g. fwd=+,bwd=- (then every label must be one of the new names)")
 	plus := fs.String("plus", "+", "label of a forward crossing of the visible edge")
 	minus := fs.String("minus", "-", "label of a backward crossing of the visible edge")
@@ -56,20 +56,19 @@ func cmdInspect(args []string, stdout, stderr io.Writer) int {
 	perRecord := fs.Bool("per-record", false, "also show each record on its own")
 	window := fs.Float64("window", 50, "mean events per window for the current's fluctuations")
 	boot := fs.Int("bootstrap", 1000, "bootstrap resamples for F (0: delta method only)")
+	shapeBoot := fs.Int("shape-resamples", 199, "null resamples calibrating the shape test (0: none; skipped above 10^6 gaps)")
 	seed := fs.Uint64P("seed", "s", 1, "random seed of the bootstrap")
 	out := fs.StringP("output", "o", "-", "output file (- for standard output)")
 	force := fs.Bool("force", false, "overwrite an existing output file")
 	if code := parseFlags(fs, args); code >= 0 {
 		return code
 	}
-	if fs.NArg() != 1 || *boot < 0 || !(*window > 0) {
+	if fs.NArg() != 1 || *boot < 0 || *shapeBoot < 0 || !(*window > 0) {
 		fs.Usage()
 		return 2
 	}
-	switch *format {
-	case "table", "markdown", "csv", "json":
-	default:
-		fmt.Fprintf(stderr, "edgewise: unknown format %q (want table, markdown, csv or json)\n", *format)
+	if !validFormat(*format) {
+		fmt.Fprintf(stderr, "edgewise: unknown format %q (want %s)\n", *format, formats)
 		return 2
 	}
 	opt := infer.ReadOptions{Trace: *trace}
@@ -87,7 +86,7 @@ func cmdInspect(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "edgewise: %v\n", err)
 		return 1
 	}
-	r, err := inspectReport(d, rep, inspectConfig{plus: *plus, minus: *minus, perRecord: *perRecord, window: *window, boot: *boot, seed: *seed})
+	r, err := inspectReport(d, rep, inspectConfig{plus: *plus, minus: *minus, perRecord: *perRecord, window: *window, boot: *boot, shapeBoot: *shapeBoot, seed: *seed})
 	if err != nil {
 		fmt.Fprintf(stderr, "edgewise: %v\n", err)
 		return 1
@@ -109,6 +108,13 @@ func cmdInspect(args []string, stdout, stderr io.Writer) int {
 	return 0
 }
 
+func differ(significant bool) string {
+	if significant {
+		return "the shapes differ"
+	}
+	return "no significant difference"
+}
+
 // readInput reads records from path ("-": stdin), hashing the bytes read.
 func readInput(path string, stdin io.Reader, opt infer.ReadOptions) (*likelihood.Data, *infer.ReadReport, string, error) {
 	var src io.Reader
@@ -122,6 +128,9 @@ func readInput(path string, stdin io.Reader, opt infer.ReadOptions) (*likelihood
 		}
 		defer f.Close()
 		src = f
+		if fi, err := f.Stat(); err == nil {
+			opt.SizeHint = fi.Size()
+		}
 	}
 	h := sha256.New()
 	d, rep, err := infer.ReadRecords(io.TeeReader(src, h), name, opt)
@@ -160,6 +169,7 @@ type inspectConfig struct {
 	perRecord   bool
 	window      float64
 	boot        int
+	shapeBoot   int
 	seed        uint64
 }
 
@@ -188,7 +198,7 @@ func pval(p float64) string {
 	if math.IsNaN(p) {
 		return "n/a"
 	}
-	if p < 1e-300 {
+	if p < 1e-300 && p >= 0 {
 		return "< 1e-300"
 	}
 	return strconv.FormatFloat(p, 'g', 3, 64)
@@ -226,7 +236,7 @@ func inspectReport(d *likelihood.Data, rep *infer.ReadReport, c inspectConfig) (
 	tabs := []table{dt}
 
 	// Labels.
-	lt := table{Title: "Labels: counts and rates (1/time)", Columns: []string{"label", "count", "rate", "SE", lvl + " interval"}}
+	lt := table{Title: "Labels: counts and rates (1/time; Poisson standard errors)", Columns: []string{"label", "count", "rate", "SE", lvl + " interval"}}
 	for l, name := range d.Labels {
 		e := p.Rates[l]
 		lt.Rows = append(lt.Rows, []string{name, strconv.Itoa(p.Counts[l]), num(e.Value), num(e.SE), interval(e)})
@@ -234,20 +244,22 @@ func inspectReport(d *likelihood.Data, rep *infer.ReadReport, c inspectConfig) (
 	tabs = append(tabs, lt)
 
 	// Current, activity, affinity, fluctuations.
-	var fBoot infer.Estimate
 	if single {
 		ct := table{Title: "Visible edge: current, activity, fluctuations, effective affinity", Columns: []string{"quantity", "value", "SE", lvl + " interval", "method", "note"}}
 		row := func(name string, e infer.Estimate) {
 			ct.Rows = append(ct.Rows, []string{name, num(e.Value), num(e.SE), interval(e), e.Method, e.Note})
 		}
-		row("current J = (n+ - n-)/time", p.Current)
-		row("activity (n+ + n-)/time", p.Activity)
+		pl, mi := c.plus, c.minus
+		row(fmt.Sprintf("current J = (n%s - n%s)/time", pl, mi), p.Current)
+		row(fmt.Sprintf("activity (n%s + n%s)/time", pl, mi), p.Activity)
 		row("diffusion D of the current (Var c ~ 2Dt)", p.Diffusion)
 		row("Fano factor Var c / |mean c| (randomness)", p.Fano)
-		row("F = ln[P(+|+)/P(-|-)] (k_BT)", p.Affinity)
+		row(fmt.Sprintf("F = ln[P(%s|%s)/P(%s|%s)] (k_BT)", pl, pl, mi, mi), p.Affinity)
 		if c.boot > 0 {
-			fBoot = infer.EffectiveAffinity(d, uint8(s.Plus), uint8(s.Minus), infer.AffinityOptions{Level: s.Level, Bootstrap: c.boot, Seed: c.seed})
-			row("F, bootstrap", fBoot)
+			fBoot := infer.EffectiveAffinity(d, uint8(s.Plus), uint8(s.Minus), infer.AffinityOptions{Level: s.Level, Bootstrap: c.boot, Seed: c.seed})
+			if fBoot.Method != p.Affinity.Method {
+				row("F, bootstrap", fBoot)
+			}
 		}
 		tabs = append(tabs, ct)
 	}
@@ -279,18 +291,39 @@ func inspectReport(d *likelihood.Data, rep *infer.ReadReport, c inspectConfig) (
 	// Shape test and assumption checks.
 	at := table{Title: "Tests", Columns: []string{"test", "statistic", "df", "p", "reading"}}
 	if single {
-		sh, err := infer.ShapeTest(d, uint8(s.Plus), uint8(s.Minus))
+		// Calibrate by resampling when affordable (O(resamples x gaps)).
+		so := infer.ShapeOptions{Seed: c.seed}
+		nPP, nMM := p.Pairs[s.Plus][s.Plus], p.Pairs[s.Minus][s.Minus]
+		if c.shapeBoot > 0 && nPP+nMM <= 1_000_000 {
+			so.Bootstrap = c.shapeBoot
+		}
+		sh, err := infer.ShapeTest(d, uint8(s.Plus), uint8(s.Minus), so)
 		if err != nil {
 			at.Rows = append(at.Rows, []string{"shape of ++ vs -- gaps", "n/a", "", "n/a", err.Error()})
 		} else {
+			pKS, pAD := pval(sh.P), sh.AD.PBound+pval(sh.AD.P)
+			sigKS, sigAD := sh.P < 0.05, sh.AD.P <= 0.05
+			how := "asymptotic p, conservative"
+			if sh.Exact {
+				how = "exact p, conservative"
+			}
+			if sh.Bootstrap > 0 {
+				pKS, pAD = pval(sh.PBoot), pval(sh.ADPBoot)
+				sigKS, sigAD = sh.PBoot <= 0.05, sh.ADPBoot <= 0.05
+				how = fmt.Sprintf("p from %d null resamples", sh.Bootstrap)
+			} else if c.shapeBoot > 0 {
+				r.Notes = append(r.Notes, "shape test: too many gaps to calibrate by resampling; its p-values are conservative (they err towards no difference)")
+			}
 			reading := "no significant difference: consistent with every driven cycle passing through the visible edge and perfect detection (not a proof)"
-			if sh.P < 0.05 {
+			if sigKS || sigAD {
 				reading = "the shapes differ: this rules out every scheme in which each driven cycle passes through the visible edge with perfect detection (missed events also make the shapes differ)"
 			}
 			if sh.Note != "" {
 				reading += "; " + sh.Note
 			}
-			at.Rows = append(at.Rows, []string{fmt.Sprintf("shape of ++ (%d) vs -- (%d) gaps, KS distance", sh.NPlus, sh.NMinus), num(sh.D), "", pval(sh.P), reading})
+			at.Rows = append(at.Rows,
+				[]string{fmt.Sprintf("shape of ++ (%d) vs -- (%d) gaps, KS distance (%s)", sh.NPlus, sh.NMinus, how), num(sh.D), "", pKS, reading},
+				[]string{fmt.Sprintf("shape of ++ vs -- gaps, Anderson-Darling T (%s)", how), num(sh.AD.T), "", pAD, differ(sigAD)})
 		}
 	}
 	mo := infer.MarkovOrderTest(d)
@@ -325,7 +358,7 @@ func inspectReport(d *likelihood.Data, rep *infer.ReadReport, c inspectConfig) (
 
 	// Per record.
 	if c.perRecord {
-		pt := table{Title: "Per record", Columns: []string{"record", "events", "time", "J", "F", "F SE", "P(+|+)", "P(-|-)", "halves P(next|last) p", "halves mean gap p"}}
+		pt := table{Title: "Per record", Columns: []string{"record", "events", "zero gaps", "time", "J", "F", "F SE", fmt.Sprintf("P(%s|%s)", c.plus, c.plus), fmt.Sprintf("P(%s|%s)", c.minus, c.minus), "halves P(next|last) p", "halves mean gap p"}}
 		for i, pr := range s.Records {
 			id := pr.ID
 			if id == "" {
@@ -336,7 +369,7 @@ func inspectReport(d *likelihood.Data, rep *infer.ReadReport, c inspectConfig) (
 				pp, pm = num(pr.Next[s.Plus][s.Plus].Value), num(pr.Next[s.Minus][s.Minus].Value)
 			}
 			rs := st.Records[i]
-			pt.Rows = append(pt.Rows, []string{id, strconv.Itoa(pr.Events), num(pr.Duration), num(pr.Current.Value), num(pr.Affinity.Value), num(pr.Affinity.SE), pp, pm, pval(rs.Next.P), pval(rs.MeanGap.P)})
+			pt.Rows = append(pt.Rows, []string{id, strconv.Itoa(pr.Events), strconv.Itoa(rep.Records[i].Duplicates), num(pr.Duration), num(pr.Current.Value), num(pr.Affinity.Value), num(pr.Affinity.SE), pp, pm, pval(rs.Next.P), pval(rs.MeanGap.P)})
 		}
 		tabs = append(tabs, pt)
 	}

@@ -18,7 +18,7 @@ func TestInspectDemo(t *testing.T) {
 		t.Fatal(err)
 	}
 	sum := checksum(src)[:12]
-	for _, f := range []string{"table", "markdown", "csv", "json"} {
+	for _, f := range []string{"table", "markdown", "latex", "csv", "json"} {
 		var out, errb bytes.Buffer
 		if code := run([]string{"inspect", "../../testdata/ring3-demo.csv", "--per-record", "--bootstrap", "200", "--seed", "7", "--format", f}, &out, &errb); code != 0 {
 			t.Fatalf("%s: code %d: %s", f, code, errb.String())
@@ -27,6 +27,22 @@ func TestInspectDemo(t *testing.T) {
 		for _, want := range []string{"4.3739", "seed 7", "shape of ++", "second order"} {
 			if !strings.Contains(o, want) {
 				t.Errorf("%s: %q missing", f, want)
+			}
+		}
+		if f == "markdown" {
+			// Every table line has one more unescaped "|" than columns.
+			cols := 0
+			for _, line := range strings.Split(o, "\n") {
+				if !strings.HasPrefix(line, "|") {
+					cols = 0
+					continue
+				}
+				n := strings.Count(line, "|") - strings.Count(line, `\|`)
+				if cols == 0 {
+					cols = n
+				} else if n != cols {
+					t.Errorf("markdown row with %d separators, header %d: %s", n, cols, line)
+				}
 			}
 		}
 		if f != "json" && !strings.Contains(o, sum) {
@@ -107,5 +123,23 @@ func TestSimulateInspectRoundTrip(t *testing.T) {
 	}
 	if !strings.Contains(out.String(), "records,2\n") || !strings.Contains(out.String(), "events,6000\n") {
 		t.Errorf("output:\n%s", out.String())
+	}
+}
+
+// TestInspectTrace: a state trace becomes labelled events "X>Y"; the
+// shipped example (600 samples of a three-state ring) has 58 changes of
+// state, of which 13 are A>B.
+func TestInspectTrace(t *testing.T) {
+	var out, errb bytes.Buffer
+	if code := run([]string{"inspect", "../../testdata/infer/ring3-trace.csv", "--plus", "A>B", "--minus", "B>A", "--format", "csv"}, &out, &errb); code != 0 {
+		t.Fatalf("code %d: %s", code, errb.String())
+	}
+	for _, want := range []string{"events,58\n", "file kind,state trace\n", "A>B,13,", "neither a ++ pair"} {
+		if !strings.Contains(out.String(), want) {
+			t.Errorf("%q missing:\n%s", want, out.String())
+		}
+	}
+	if strings.Contains(out.String(), "F, bootstrap") {
+		t.Error("bootstrap row shown for an undefined F")
 	}
 }

@@ -62,11 +62,20 @@ func (r *report) write(w io.Writer, format string) error {
 		cw.Flush()
 		return cw.Error()
 	case "markdown":
+		// "|" inside a cell (as in P(+|+)) would split the column.
+		esc := strings.NewReplacer("|", `\|`).Replace
+		cells := func(xs []string) string {
+			out := make([]string, len(xs))
+			for i, x := range xs {
+				out[i] = esc(x)
+			}
+			return strings.Join(out, " | ")
+		}
 		fmt.Fprintf(w, "<!-- %s -->\n\n", r.stamp())
 		for _, t := range r.Tables {
-			fmt.Fprintf(w, "**%s**\n\n| %s |\n|%s\n", t.Title, strings.Join(t.Columns, " | "), strings.Repeat("---|", len(t.Columns)))
+			fmt.Fprintf(w, "**%s**\n\n| %s |\n|%s\n", esc(t.Title), cells(t.Columns), strings.Repeat("---|", len(t.Columns)))
 			for _, row := range t.Rows {
-				fmt.Fprintf(w, "| %s |\n", strings.Join(row, " | "))
+				fmt.Fprintf(w, "| %s |\n", cells(row))
 			}
 			fmt.Fprintln(w)
 		}
@@ -167,6 +176,8 @@ func texEscape(s string) string {
 		`\`, `\textbackslash{}`, "&", `\&`, "%", `\%`, "$", `\$`, "#", `\#`,
 		"_", `\_`, "{", `\{`, "}", `\}`, "~", `\textasciitilde{}`, "^", `\textasciicircum{}`,
 		"·", `$\cdot$`, "±", `$\pm$`, "->", `$\to$`,
+		// OT1-encoded text would print these as other glyphs.
+		"|", `$|$`, "<", `$<$`, ">", `$>$`,
 	).Replace(s)
 }
 

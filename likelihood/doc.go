@@ -1,0 +1,170 @@
+// Package likelihood is the visible-transition likelihood engine: the
+// generator split L = D0 + sum_l D_l, matrix exponentials, the exact
+// log-likelihood of a data set and its exact gradient, and the predicted
+// observables of a model (Predictor).
+//
+// # Units and conventions
+//
+// Rates are in 1/time and times in the same unit (the records' unit).
+// Vectors over states are rows when they carry probability forward (alpha)
+// and columns when they carry likelihood backward (beta). ln is the natural
+// logarithm. For exact timestamps the likelihood is a density in
+// (1/time)^(number of gaps); with frame-limited timestamps each gap
+// contributes a probability instead.
+//
+// # Generator split and detection
+//
+// (D_l)_ij = p_l w_ij on every directed edge i->j that carries label l
+// (detection probability p_l); D0 = L - sum_l D_l holds the hidden rates,
+// the missed share (1 - p_l) w_ij of the visible ones and the diagonal
+// -sum_j w_ij. After a detected event the instrument may be blind for a
+// dead time delta, during which the chain runs under L and every event is
+// lost. The factor of an event with label l after a gap tau is
+//
+//	M(tau) = exp(L delta) E(tau) D_l,   E(tau) = exp(D0 (tau - delta)),
+//
+// and a gap tau < delta is impossible (an error naming the record and the
+// event). Without dead time exp(L delta) = I.
+//
+// Frame-limited timestamps (Instrument.Frame = F > 0): a reported gap g is
+// taken to mean that the true gap lies in [max(g - F/2, 0), g + F/2], and
+// E(tau) is replaced by the exact integral over that interval (shifted by
+// the dead time and clipped at 0),
+//
+//	int_a^b exp(D0 s) ds = D0^{-1} (exp(D0 b) - exp(D0 a)).
+//
+// For timestamps that are frame starts, the reported gap g = mF says that
+// the true gap lies in ((m-1)F, (m+1)F), with a triangular weight if the
+// phase within the frame is uniform; the box [g - F/2, g + F/2] has the
+// same centre, and the boxes of g = 0, F, 2F, ... tile [0, inf), so the
+// probabilities of all possible reports sum to one. This is an
+// approximation in two ways: the box replaces the triangular weight, and
+// treating consecutive gaps as independent intervals ignores that two
+// consecutive gaps share the phase of the event between them (their
+// errors are anti-correlated). The approximation is good when F is small
+// against the time scales of D0 and degrades as F grows. A censored end
+// (below) is taken as exact.
+//
+// # Log-likelihood
+//
+// A record with events (t_k, l_k), k = 1..n, contributes
+//
+//	L_r = alpha_1 M_2 M_3 ... M_n u,
+//
+// with u = 1, or, when Record.End is known, u = exp(L delta) exp(D0 (End -
+// t_n - delta)) 1 for End - t_n > delta and u = 1 otherwise (no event can
+// be detected while the instrument is dead). The start (Options.Start):
+//
+//   - StartFirstEvent (default): the record is conditioned on its first
+//     event; alpha_1 = w0 D_{l_1} / (w0 D_{l_1} 1), w0 = nu exp(L delta)
+//     (-D0)^{-1}, nu the stationary law of the post-event chain
+//     K = exp(L delta) (-D0)^{-1} sum_l D_l (the state right after a
+//     typical event). Without dead time w0 is proportional to pi, the
+//     stationary law of L, so alpha_1 is proportional to pi D_{l_1}. The
+//     first event's time and label then contribute nothing.
+//   - StartStationary: the observation began at time 0 in the stationary
+//     law pi with the instrument ready, and L_r = pi E(t_1) D_{l_1} M_2 ...
+//     M_n u, E(t_1) without dead time: the density of the first event is
+//     included.
+//
+// ln L is the sum over records. General path: the forward recursion
+// alpha_k = alpha_{k-1} M_k, with alpha rescaled to sum 1 at every step and
+// ln L accumulating the logs of the scale factors. Fast path (used
+// automatically when every label sits on exactly one directed edge and the
+// spectral route is in use, for any detection probability, dead time,
+// frames, start or end): the state after each event is known, so
+//
+//	ln L_r = sum_k ln psi_{l_{k-1} -> l_k}(tau_k),
+//	psi_{l->l'}(tau) = [exp(L delta) E(tau)]_{to(l), from(l')} p_{l'} w_{l'},
+//
+// each term costing O(N) from a precomputed table (the product is kept as
+// a mantissa and a power of two, so the loop takes no logarithm). The two
+// paths agree where both apply (tested).
+//
+// Long gaps do not underflow on the spectral route: exp(D0 t) is evaluated
+// as e^{lmax t} times W B(e^{(lambda - lmax) t}) W^{-1}, lmax the Perron
+// (largest real) eigenvalue of D0, and lmax t is added to ln L directly.
+//
+// Data labels are matched to model labels by name; a data label the model
+// does not have is an error, and so is an event the model cannot produce
+// (zero or negative density: the error names the record and the event), an
+// empty record, a time that is not finite or decreases, and a non-finite
+// result.
+//
+// # Matrix exponentials
+//
+// Propagator evaluates exp(A t) and int_lo^hi exp(A s) ds by one of three
+// independent routes (ExpMethod):
+//
+//   - spectral: D0 = V diag(lambda) V^{-1} once per parameter vector
+//     (gonum mat.Eigen; complex pairs kept as real 2x2 rotation blocks, so
+//     products stay real), then O(N^2) per vector product and O(N) per
+//     psi value;
+//   - Pade: scaling and squaring (gonum mat.Dense.Exp), O(N^3) per value,
+//     integrals by Van Loan's block exponential;
+//   - uniformisation: sum_n Pois(n; q t) (I + A/q)^n on a step with
+//     q t <= 1, then squaring; all terms non-negative for a sub-generator.
+//
+// The fallback rule (ExpAuto, the default): the spectral route is kept
+// when cond_1(V) <= SpectralMaxCond = 1e6 (V with unit columns) and every
+// pair of eigenvalues is separated by at least SpectralMinGap = 1e-6
+// relative; otherwise the Pade route is used, and the general path with
+// it (a defective D0, such as an irreversible ring with equal rates, or a
+// D0 with repeated eigenvalues). Distinct intervals are evaluated once
+// where that pays: the Pade route (O(N^3) per interval) caches
+// exponentials by exact interval value, and the spectral route caches the
+// coefficients of frame intervals (N complex exponentials each; camera
+// data repeat a few values), both in bounded per-goroutine caches. For
+// exact timestamps the spectral route evaluates N scalar exponentials per
+// event, which costs no more than a cache lookup, and does not cache.
+//
+// The Pade route shifts likewise for exact times, exp(D0 t) =
+// e^{s t} exp((D0 - s I) t) with s the largest real part of D0's computed
+// eigenvalues; frame intervals are not shifted there, so on the Pade route
+// a frame interval so far out that its integral underflows (|lmax| t
+// beyond about 700) is reported as impossible.
+//
+// # Gradient
+//
+// Evaluator.Gradient returns d ln L / d ln w for every directed edge (index
+// 2*edge + direction, as in models.Network.Edges) and d ln L / d p_l for
+// every label, exactly (reverse mode; finite differences are only a test
+// oracle). With normalised forward vectors alpha and backward vectors beta
+// around an event, c = alpha M beta, the sensitivities are
+//
+//	d ln L = sum_events [alpha dG E D beta + (alpha G) dE (D beta) + (alpha G E) dD beta] / c
+//
+// plus the start and end terms. The middle term is Fisher's identity in
+// matrix form: d ln L / d (D0)_ij = sum_events K_ij / c with
+//
+//	K = int_0^tau (a^T exp(D0 s))^T (exp(D0 (tau - s)) b)^T ds
+//	  = V^{-T} [(V^T a)(V^{-1} b)^T o Phi(tau)] V^T,
+//	Phi_kl = (e^{lambda_k tau} - e^{lambda_l tau}) / (lambda_k - lambda_l),  Phi_kk = tau e^{lambda_k tau},
+//
+// (the expected number of D0 jumps i->j and, on the diagonal, the expected
+// time in state i, given the data), a = (alpha G)^T, b = D beta. Phi is
+// linear in the exponentials, so the sums over events are accumulated in
+// eigen coordinates and Phi's divided differences are taken once at the
+// end: O(N^2) per event on the general path, O(N) on the fast path. For a
+// frame interval, Phi is integrated over [lo, hi] (same form with
+// int e^{lambda s} ds and int s e^{lambda s} ds). On the Pade route K comes
+// from Van Loan's block exponential exp([[D0^T, X], [0, D0^T]] tau) (a 3x3
+// block form for frame intervals), summed per distinct interval. The dead
+// time term uses the same block exponential once, with L. The start law
+// w0 = nu G A is differentiated through dnu = nu dK (I - K + 1 nu)^{-1} and
+// dA = A dD0 A, and pi through dpi = -(pi dL) (L - 1 pi)^{-1}. The backward
+// vectors of a record are stored only every 512 steps and recomputed per
+// segment, so the gradient needs O(N (n/512 + 512)) memory per record of n
+// events rather than O(N n). Model-level
+// gradients (ModelLogLikGrad) follow by the chain rule through
+// models.Model.Jacobian.
+//
+// # Parallelism and determinism
+//
+// The data are cut into work items by a rule that depends on the data only
+// (whole records on the general path, grouped to about 2^15 events; on the
+// fast path long records are also split, since each pair factor is
+// independent). Options.Workers goroutines evaluate the items and the
+// per-item sums are added in item order, so the result is bit-identical
+// for every number of workers.
+package likelihood

@@ -1,0 +1,6 @@
+//go:build !unix
+
+package likelihood
+
+// coreCPUTime is unavailable on this platform.
+func coreCPUTime() (int64, bool) { return 0, false }
