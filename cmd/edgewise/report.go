@@ -88,7 +88,9 @@ func (r *report) write(w io.Writer, format string) error {
 	case "table", "":
 		for _, t := range r.Tables {
 			fmt.Fprintf(w, "%s\n", t.Title)
-			tw := tablewriter.NewTable(w, tablewriter.WithHeaderAutoFormat(twopt.Off))
+			tw := tablewriter.NewTable(w, tablewriter.WithHeaderAutoFormat(twopt.Off),
+				tablewriter.WithRowAutoWrap(twopt.WrapNormal), tablewriter.WithRowMaxWidth(44),
+				tablewriter.WithHeaderAutoWrap(twopt.WrapNormal), tablewriter.WithHeaderMaxWidth(44))
 			h := make([]any, len(t.Columns))
 			for i, c := range t.Columns {
 				h[i] = c
