@@ -336,6 +336,54 @@ func (s *spectral) colBlock(v, z []float64) {
 	}
 }
 
+// rowHat converts a row vector u = x W to the complex coordinates x V.
+func (s *spectral) rowHat(u []float64) []complex128 {
+	h := make([]complex128, s.n)
+	s.rowHatTo(h, u)
+	return h
+}
+
+func (s *spectral) rowHatTo(h []complex128, u []float64) {
+	for k := 0; k < s.n; k++ {
+		switch s.kind[k] {
+		case 0:
+			h[k] = complex(u[k], 0)
+		case 1:
+			h[k], h[k+1] = complex(u[k], u[k+1]), complex(u[k], -u[k+1])
+		}
+	}
+}
+
+// colHat converts a column vector v = W^{-1} b to V^{-1} b.
+func (s *spectral) colHat(v []float64) []complex128 {
+	h := make([]complex128, s.n)
+	s.colHatTo(h, v)
+	return h
+}
+
+func (s *spectral) colHatTo(h []complex128, v []float64) {
+	for k := 0; k < s.n; k++ {
+		switch s.kind[k] {
+		case 0:
+			h[k] = complex(v[k], 0)
+		case 1:
+			h[k], h[k+1] = complex(v[k]/2, -v[k+1]/2), complex(v[k]/2, v[k+1]/2)
+		}
+	}
+}
+
+// blockHat converts block coefficients to one complex value per column.
+func (s *spectral) blockHatTo(h []complex128, z []float64) {
+	for k := 0; k < s.n; k++ {
+		switch s.kind[k] {
+		case 0:
+			h[k] = complex(z[k], 0)
+		case 1:
+			h[k], h[k+1] = complex(z[k], z[k+1]), complex(z[k], -z[k+1])
+		}
+	}
+}
+
 // rowTimes sets dst = x M for a row-major n x n matrix m.
 func rowTimes(dst, x, m []float64, n int) {
 	for j := range dst[:n] {

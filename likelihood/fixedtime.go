@@ -37,7 +37,8 @@ const fixedTimeMaxJumps = 200000
 // window is integrated exactly through Gamma distribution functions).
 // Differences of those functions limit the absolute accuracy to about
 // 1e-12. Cost grows by the number of event counts carried (those with
-// total probability above 1e-40; the rest are dropped).
+// total probability above 1e-40; the rest, and Poisson weights below
+// 1e-40, are dropped).
 //
 // Every result is checked to carry total probability 1 within 1e-9; a
 // failure is reported as an error, never hidden by normalisation.

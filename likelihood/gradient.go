@@ -23,7 +23,7 @@ type Gradient struct {
 // Gradient returns ln L of d and its exact gradient (see the package
 // documentation for the method).
 func (e *Evaluator) Gradient(d *Data) (float64, *Gradient, error) {
-	acc, err := e.run(d, true)
+	acc, err := e.run(d, true, nil)
 	if err != nil {
 		return math.NaN(), nil, err
 	}

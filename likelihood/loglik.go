@@ -78,16 +78,16 @@ type Evaluator struct {
 	dshift float64
 	d0s    *mat.Dense
 	dprop  *Propagator
-	delta float64
-	frame float64
-	g     []float64  // exp(L delta) row-major, nil without dead time
-	pi    []float64  // stationary law of L
-	nu    []float64  // stationary post-event law (sum 1)
-	w0    []float64  // nu G A: the pre-D law of the first event (StartFirstEvent)
-	amat  *mat.Dense // A = (-D0)^{-1}
-	kmat  *mat.Dense // K = G A D, the post-event chain
-	dsp   [][]dEntry
-	fast  bool
+	delta  float64
+	frame  float64
+	g      []float64  // exp(L delta) row-major, nil without dead time
+	pi     []float64  // stationary law of L
+	nu     []float64  // stationary post-event law (sum 1)
+	w0     []float64  // nu G A: the pre-D law of the first event (StartFirstEvent)
+	amat   *mat.Dense // A = (-D0)^{-1}
+	kmat   *mat.Dense // K = G A D, the post-event chain
+	dsp    [][]dEntry
+	fast   bool
 	// Fast path tables (labels on one edge each). Pair index
 	// p = a*(nl+1) + b, a = previous label (nl: the stationary start),
 	// b = next label (nl: the censored end).
@@ -110,8 +110,10 @@ type dEntry struct {
 	v    float64
 }
 
-// NewEvaluator prepares the likelihood of the kernels k (from NewKernels)
-// under opt.
+// NewEvaluator prepares the likelihood of the kernels k (from NewKernels,
+// not modified afterwards) under opt. It fails when the options are
+// invalid, when D0 is singular (some state never reaches a visible
+// transition), or when PathFast is asked for and does not apply.
 func NewEvaluator(k *Kernels, opt Options) (*Evaluator, error) {
 	if k == nil || k.net == nil {
 		return nil, errors.New("likelihood: evaluator: kernels must come from NewKernels")
@@ -379,62 +381,28 @@ func (e *Evaluator) fastTables() {
 	}
 }
 
-// rowHat converts a row vector u = x W to the complex coordinates x V.
-func (s *spectral) rowHat(u []float64) []complex128 {
-	h := make([]complex128, s.n)
-	s.rowHatTo(h, u)
-	return h
-}
-
-func (s *spectral) rowHatTo(h []complex128, u []float64) {
-	for k := 0; k < s.n; k++ {
-		switch s.kind[k] {
-		case 0:
-			h[k] = complex(u[k], 0)
-		case 1:
-			h[k], h[k+1] = complex(u[k], u[k+1]), complex(u[k], -u[k+1])
-		}
-	}
-}
-
-// colHat converts a column vector v = W^{-1} b to V^{-1} b.
-func (s *spectral) colHat(v []float64) []complex128 {
-	h := make([]complex128, s.n)
-	s.colHatTo(h, v)
-	return h
-}
-
-func (s *spectral) colHatTo(h []complex128, v []float64) {
-	for k := 0; k < s.n; k++ {
-		switch s.kind[k] {
-		case 0:
-			h[k] = complex(v[k], 0)
-		case 1:
-			h[k], h[k+1] = complex(v[k]/2, -v[k+1]/2), complex(v[k]/2, v[k+1]/2)
-		}
-	}
-}
-
-// blockHat converts block coefficients to one complex value per column.
-func (s *spectral) blockHatTo(h []complex128, z []float64) {
-	for k := 0; k < s.n; k++ {
-		switch s.kind[k] {
-		case 0:
-			h[k] = complex(z[k], 0)
-		case 1:
-			h[k], h[k+1] = complex(z[k], z[k+1]), complex(z[k], -z[k+1])
-		}
-	}
-}
-
 // LogLik returns the log-likelihood of d (natural log; densities in
 // 1/time for exact timestamps, probabilities for frame intervals).
 func (e *Evaluator) LogLik(d *Data) (float64, error) {
-	acc, err := e.run(d, false)
+	acc, err := e.run(d, false, nil)
 	if err != nil {
 		return math.NaN(), err
 	}
 	return acc.ll, nil
+}
+
+// RecordLogLiks returns each record's contribution to ln L, in the order
+// of d.Records (for per-record comparisons and bootstraps over records).
+// Their sum equals LogLik up to summation order.
+func (e *Evaluator) RecordLogLiks(d *Data) ([]float64, error) {
+	if d == nil {
+		return nil, errors.New("likelihood: no records")
+	}
+	out := make([]float64, len(d.Records))
+	if _, err := e.run(d, false, out); err != nil {
+		return nil, err
+	}
+	return out, nil
 }
 
 // LogLik is a convenience: the log-likelihood of d under net.
@@ -473,9 +441,10 @@ func (e *Evaluator) dataLabels(d *Data) ([256]int16, error) {
 // item is one unit of work: whole records (general path) or a range of
 // events of one record (fast path). Items depend on the data only.
 type item struct {
-	segs []segment
-	acc  *accum
-	err  error
+	segs  []segment
+	acc   *accum
+	err   error
+	parts []float64 // ln L of each segment, when per-record values are wanted
 }
 
 type segment struct {
@@ -516,8 +485,9 @@ func (e *Evaluator) items(d *Data) []item {
 	return its
 }
 
-// run evaluates d, with the gradient accumulators when grad is true.
-func (e *Evaluator) run(d *Data, grad bool) (*accum, error) {
+// run evaluates d, with the gradient accumulators when grad is true, and
+// adds each record's ln L to perRecord[r] when perRecord is not nil.
+func (e *Evaluator) run(d *Data, grad bool, perRecord []float64) (*accum, error) {
 	if d == nil || len(d.Records) == 0 {
 		return nil, errors.New("likelihood: no records")
 	}
@@ -560,6 +530,12 @@ func (e *Evaluator) run(d *Data, grad bool) (*accum, error) {
 				ws.acc = it.acc
 				for _, sg := range it.segs {
 					var err error
+					var ll0, lm0 float64
+					if perRecord != nil {
+						// Evaluate the segment from zero, so that its value is exact.
+						ll0, lm0 = it.acc.ll, it.acc.lmant
+						it.acc.ll, it.acc.lmant = 0, 0
+					}
 					if e.fast {
 						err = e.fastSegment(ws, d, &lm, sg)
 					} else {
@@ -568,6 +544,10 @@ func (e *Evaluator) run(d *Data, grad bool) (*accum, error) {
 					if err != nil {
 						it.err = err
 						break
+					}
+					if perRecord != nil {
+						it.parts = append(it.parts, it.acc.ll+it.acc.lmant)
+						it.acc.ll, it.acc.lmant = ll0+it.acc.ll, lm0+it.acc.lmant
 					}
 				}
 			}
@@ -580,6 +560,9 @@ func (e *Evaluator) run(d *Data, grad bool) (*accum, error) {
 			return nil, its[i].err
 		}
 		total.add(its[i].acc)
+		for j, v := range its[i].parts {
+			perRecord[its[i].segs[j].r] += v
+		}
 	}
 	total.ll += total.lmant
 	if math.IsNaN(total.ll) || math.IsInf(total.ll, 0) {

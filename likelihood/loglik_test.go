@@ -351,3 +351,44 @@ func TestFrameProbabilitiesSumToOne(t *testing.T) {
 		}
 	}
 }
+
+// TestRecordLogLiks: per-record contributions sum to ln L (to 1e-12
+// relative: only the summation order differs), on both paths, with a
+// record long enough to be split into several fast-path work items, and
+// each equals ln L of that record alone.
+func TestRecordLogLiks(t *testing.T) {
+	rng := rand.New(rand.NewPCG(60, 61))
+	net := coreRandomNet(rng, 4, 1, 1, 1)
+	d := coreSimulate(t, net, 7, 3, 200, 0)
+	long := coreSimulate(t, net, 8, 1, 70000, 0)
+	d.Records = append(d.Records, long.Records[0])
+	for _, path := range []PathMode{PathFast, PathGeneral} {
+		ev, err := NewNetworkEvaluator(net, Options{Path: path})
+		if err != nil {
+			t.Fatal(err)
+		}
+		per, err := ev.RecordLogLiks(d)
+		if err != nil {
+			t.Fatal(err)
+		}
+		total, err := ev.LogLik(d)
+		if err != nil {
+			t.Fatal(err)
+		}
+		s := 0.0
+		for r, v := range per {
+			s += v
+			one := &Data{Labels: d.Labels, Records: d.Records[r : r+1]}
+			want, err := ev.LogLik(one)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if coreRelErr(v, want, 1) > 1e-12 {
+				t.Errorf("path %d record %d: %.15g, alone %.15g", path, r, v, want)
+			}
+		}
+		if coreRelErr(s, total, 1) > 1e-12 {
+			t.Errorf("path %d: sum of records %.15g, ln L %.15g", path, s, total)
+		}
+	}
+}
