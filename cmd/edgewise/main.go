@@ -40,6 +40,8 @@ func run(args []string, stdout, stderr io.Writer) int {
 		return cmdInspect(args[1:], stdout, stderr)
 	case "fluct":
 		return cmdFluct(args[1:], stdout, stderr)
+	case "predict":
+		return cmdPredict(args[1:], stdout, stderr)
 	case "help", "-h", "--help":
 		usage(stdout)
 		return 0
@@ -61,6 +63,7 @@ Commands:
   simulate  exact simulation of a model's visible events, as CSV records
   inspect   model-free statistics and checks of records: rates, P(l'|l), F, tests
   fluct     count-stopped fluctuation test and entropy production bounds from records
+  predict   what a model predicts for data through an instrument, and how records compare
   version   print the tool version
   help      show this help
 

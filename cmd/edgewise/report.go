@@ -89,8 +89,8 @@ func (r *report) write(w io.Writer, format string) error {
 		for _, t := range r.Tables {
 			fmt.Fprintf(w, "%s\n", t.Title)
 			tw := tablewriter.NewTable(w, tablewriter.WithHeaderAutoFormat(twopt.Off),
-				tablewriter.WithRowAutoWrap(twopt.WrapNormal), tablewriter.WithRowMaxWidth(44),
-				tablewriter.WithHeaderAutoWrap(twopt.WrapNormal), tablewriter.WithHeaderMaxWidth(44))
+				tablewriter.WithRowAutoWrap(twopt.WrapNormal), tablewriter.WithRowMaxWidth(56),
+				tablewriter.WithHeaderAutoWrap(twopt.WrapNormal), tablewriter.WithHeaderMaxWidth(56))
 			h := make([]any, len(t.Columns))
 			for i, c := range t.Columns {
 				h[i] = c
@@ -125,7 +125,12 @@ func validFormat(format string) bool {
 }
 
 func (r *report) stamp() string {
-	s := fmt.Sprintf("%s %s; input %s sha256 %s", r.Tool, r.Command, r.Input, r.Checksum[:min(12, len(r.Checksum))])
+	// Checksum holds one sha256 per input, separated by spaces.
+	var sums []string
+	for _, c := range strings.Fields(r.Checksum) {
+		sums = append(sums, c[:min(12, len(c))])
+	}
+	s := fmt.Sprintf("%s %s; input %s sha256 %s", r.Tool, r.Command, r.Input, strings.Join(sums, ", "))
 	if r.Seed != "" {
 		s += "; seed " + r.Seed
 	}

@@ -1,0 +1,304 @@
+package main
+
+import (
+	"fmt"
+	"io"
+	"math"
+	"os"
+	"strconv"
+	"strings"
+
+	"edgewise/infer"
+	"edgewise/likelihood"
+	"edgewise/models"
+)
+
+const predictHelp = `Usage: edgewise predict MODEL.toml [options]
+
+What a model predicts for data taken through a given instrument, at the
+model's start values: the embedded chain of visible labels P(next|last),
+the mean and spread of the time between consecutive events per pair, the
+rates of the labels, the visible current J and its diffusion coefficient D
+(Var c(t) ~ 2 D t), the effective affinity F = ln[P(+|+)/P(-|-)] of the
+visible edge, and the exact count-stopped law: the slope of
+ln[P_n(c)/P_n(-c)] against c for windows of n visible transitions, over all
+windows and over post-selected ones (first label the reverse of the last).
+Detection probabilities come from the spec; --dead-time adds an instrument
+that is blind for that time after each recorded event. Every prediction is
+made under that detection process, since missed events and a dead time
+change F while the count-stopped law still looks like a straight line.
+
+With --data, the records are set against the model: the log-likelihood
+(each record conditioned on its first event), and for P(+|+), P(-|-), F
+and J the data's estimate with its 95% interval and the z-score of the
+model's value. A model consistent with the data is not thereby true.
+
+Example:
+  edgewise predict testdata/ring3.toml --data testdata/ring3-demo.csv --n 5,20
+
+Options:
+`
+
+func cmdPredict(args []string, stdout, stderr io.Writer) int {
+	fs := newFlags("predict", predictHelp, args, stdout, stderr)
+	format := fs.StringP("format", "f", "table", "output format: "+formats)
+	data := fs.StringP("data", "d", "", "records to set against the model (CSV or TSV; - for standard input)")
+	dead := fs.Float64("dead-time", 0, "instrument dead time after each recorded event (time units)")
+	ns := fs.String("n", "5,20,100", "window lengths of the count-stopped law, comma separated")
+	labels := fs.String("labels", "", "forward and backward label of the visible edge, e.g. +,- (default: + and - when the model has them)")
+	out := fs.StringP("output", "o", "-", "output file (- for standard output)")
+	force := fs.Bool("force", false, "overwrite an existing output file")
+	if code := parseFlags(fs, args); code >= 0 {
+		return code
+	}
+	if fs.NArg() != 1 {
+		fs.Usage()
+		return 2
+	}
+	if !validFormat(*format) {
+		fmt.Fprintf(stderr, "edgewise: unknown format %q (want %s)\n", *format, formats)
+		return 2
+	}
+	windows, err := parseInts(*ns)
+	if err != nil {
+		fmt.Fprintf(stderr, "edgewise: --n: %v\n", err)
+		return 2
+	}
+	path := fs.Arg(0)
+	src, m, net, err := loadModel(path)
+	if err != nil {
+		fmt.Fprintf(stderr, "edgewise: %v\n", err)
+		return 1
+	}
+	in := likelihood.Instrument{DeadTime: *dead}
+	if err := in.Validate(); err != nil {
+		fmt.Fprintf(stderr, "edgewise: --dead-time: %v\n", err)
+		return 2
+	}
+	k, err := likelihood.NewKernels(net)
+	if err != nil {
+		fmt.Fprintf(stderr, "edgewise: %v\n", err)
+		return 1
+	}
+	pred, err := likelihood.NewPredictor(k, in)
+	if err != nil {
+		fmt.Fprintf(stderr, "edgewise: %v\n", err)
+		return 1
+	}
+	plus, minus, err := visibleEdge(pred, k.Labels, *labels)
+	if err != nil {
+		fmt.Fprintf(stderr, "edgewise: --labels: %v\n", err)
+		return 2
+	}
+	r := &report{Tool: "edgewise " + version, Command: "predict", Input: path, Checksum: checksum(src)}
+	if err := predictTables(r, m, net, k, pred, plus, minus, windows); err != nil {
+		fmt.Fprintf(stderr, "edgewise: %v\n", err)
+		return 1
+	}
+	if *data != "" {
+		d, _, sum, err := readInput(*data, os.Stdin, infer.ReadOptions{Known: k.Labels})
+		if err != nil {
+			fmt.Fprintf(stderr, "edgewise: %v\n", err)
+			return 1
+		}
+		r.Input += ", " + *data
+		r.Checksum += " " + sum
+		if err := againstData(r, net, pred, d, in, plus, minus); err != nil {
+			fmt.Fprintf(stderr, "edgewise: %v\n", err)
+			return 1
+		}
+	}
+	r.Notes = append(r.Notes, "predictions at the model's start values; they hold for data taken through the same detection process (detection probabilities, dead time)")
+	gen := func(w io.Writer) error { return r.write(w, *format) }
+	if *out == "-" {
+		err = gen(stdout)
+	} else {
+		err = writeAtomic(*out, *force, gen)
+	}
+	if err != nil {
+		fmt.Fprintf(stderr, "edgewise: %v\n", err)
+		return 1
+	}
+	return 0
+}
+
+// visibleEdge picks the forward and backward label of the visible edge:
+// from "a,b" when given, else "+" and "-" when the model has them, else the
+// first label and its reverse. It returns -1, -1 when there is no such pair.
+func visibleEdge(p *likelihood.Predictor, names []string, spec string) (int, int, error) {
+	idx := func(name string) int {
+		for i, n := range names {
+			if n == name {
+				return i
+			}
+		}
+		return -1
+	}
+	if spec != "" {
+		a, b, ok := strings.Cut(spec, ",")
+		pi, mi := idx(strings.TrimSpace(a)), idx(strings.TrimSpace(b))
+		if !ok || pi < 0 || mi < 0 || pi == mi {
+			return -1, -1, fmt.Errorf("%q: want two different labels of the model (%s)", spec, strings.Join(names, ", "))
+		}
+		return pi, mi, nil
+	}
+	if pi, mi := idx("+"), idx("-"); pi >= 0 && mi >= 0 {
+		return pi, mi, nil
+	}
+	for l := range names {
+		if r := p.Reverse(l); r >= 0 && r != l {
+			return l, r, nil
+		}
+	}
+	return -1, -1, nil
+}
+
+func predictTables(r *report, m *models.Model, net *models.Network, k *likelihood.Kernels, p *likelihood.Predictor, plus, minus int, windows []int) error {
+	g := func(x float64) string { return num(x + 0) } // + 0 turns -0 into 0
+	names := k.Labels
+	P := p.Transition()
+	chain := table{Title: "Predicted next label and gap (time between consecutive events)", Columns: []string{"last", "next", "P(next|last)", "mean gap", "CV of gap"}}
+	for l := range names {
+		for l2 := range names {
+			m1, m2 := p.PsiMoments(l, l2)
+			mean, cv := math.NaN(), math.NaN()
+			if P[l][l2] > 0 {
+				mean = m1 / P[l][l2]
+				cv = math.Sqrt(math.Max(m2/P[l][l2]-mean*mean, 0)) / mean
+			}
+			chain.Rows = append(chain.Rows, []string{names[l], names[l2], g(P[l][l2]), g(mean), g(cv)})
+		}
+	}
+	sum := table{Title: "Predicted rates, current and affinity", Columns: []string{"quantity", "value"}}
+	for l, rate := range p.Rates() {
+		sum.Rows = append(sum.Rows, []string{"rate of " + names[l] + " (1/time)", g(rate)})
+	}
+	sum.Rows = append(sum.Rows, []string{"mean time between events", g(p.MeanGap())})
+	pi, err := net.Stationary()
+	if err != nil {
+		return err
+	}
+	sigma := net.EntropyProduction(pi)
+	single := true
+	for _, es := range k.Edges {
+		single = single && len(es) == 1
+	}
+	tables := []table{chain, sum}
+	if plus >= 0 {
+		q := make([]float64, len(names))
+		q[plus], q[minus] = 1, -1
+		J, D, err := p.Current(q)
+		if err != nil {
+			return err
+		}
+		F := p.EffectiveAffinity(plus, minus)
+		sum.Rows = append(sum.Rows,
+			[]string{fmt.Sprintf("current J = rate(%s) - rate(%s) (1/time)", names[plus], names[minus]), g(J)},
+			[]string{"diffusion coefficient D of the current (1/time)", g(D)},
+			[]string{fmt.Sprintf("effective affinity F = ln[P(%s|%s)/P(%s|%s)] (k_BT)", names[plus], names[plus], names[minus], names[minus]), g(F)},
+			[]string{"entropy production sigma of the network (k_B/time)", g(sigma)},
+		)
+		if single {
+			sum.Rows = append(sum.Rows,
+				[]string{"lower bound F*J (k_B/time)", g(F * J)},
+				[]string{"lower bound J^2/D (k_B/time)", g(J * J / D)})
+		} else {
+			r.Notes = append(r.Notes, "a label sits on several directed edges: F*J and J^2/D are not lower bounds on sigma here, so they are not shown")
+		}
+		if len(m.Affinities) > 0 {
+			r.Notes = append(r.Notes, "the spec imposes cycle affinities (see describe); F is what the visible edge shows of them")
+		}
+		qi := make([]int, len(names))
+		qi[plus], qi[minus] = 1, -1
+		cs := table{Title: "Count-stopped law: slope of ln[P_n(c)/P_n(-c)] against c (k_BT)", Columns: []string{"n", "all windows", "post-selected", "post-selected share", "F"}}
+		for _, n := range windows {
+			all, err := p.CountStopped(n, qi, false)
+			if err != nil {
+				return err
+			}
+			post, err := p.CountStopped(n, qi, true)
+			if err != nil {
+				return err
+			}
+			cs.Rows = append(cs.Rows, []string{strconv.Itoa(n), g(originSlope(all)), g(originSlope(post)), g(post.Weight), g(F)})
+		}
+		tables = append(tables, cs)
+		r.Notes = append(r.Notes, "count-stopped slopes: least squares through the origin over every c with P_n(c) and P_n(-c) above 1e-12; post-selected windows give F exactly when the labels are first-order Markov")
+	} else {
+		sum.Rows = append(sum.Rows, []string{"entropy production sigma of the network (k_B/time)", g(sigma)})
+		r.Notes = append(r.Notes, "no pair of labels forms one visible edge: current, F and the count-stopped law are not shown")
+	}
+	tables[1] = sum
+	r.Tables = append(r.Tables, tables...)
+	return nil
+}
+
+// originSlope fits ln[P(c)/P(-c)] = s c through the origin over the c > 0
+// whose probabilities both exceed 1e-12 (unweighted: the exact law has no
+// sampling noise), NaN when there is none.
+func originSlope(d likelihood.CountDist) float64 {
+	c, lr := d.LogRatio(1e-12)
+	var num, den float64
+	for i := range c {
+		if c[i] > 0 && !math.IsInf(lr[i], 0) && !math.IsNaN(lr[i]) {
+			num += float64(c[i]) * lr[i]
+			den += float64(c[i] * c[i])
+		}
+	}
+	if den == 0 {
+		return math.NaN()
+	}
+	return num / den
+}
+
+// againstData sets the records against the model's predictions.
+func againstData(r *report, net *models.Network, p *likelihood.Predictor, d *likelihood.Data, in likelihood.Instrument, plus, minus int) error {
+	g := func(x float64) string { return num(x + 0) } // + 0 turns -0 into 0
+	ll, err := likelihood.LogLik(net, d, likelihood.Options{Instrument: in})
+	if err != nil {
+		return err
+	}
+	gaps := d.Events() - len(d.Records)
+	lt := table{Title: "Log-likelihood of the records under the model", Columns: []string{"quantity", "value"}, Rows: [][]string{
+		{"records", strconv.Itoa(len(d.Records))},
+		{"events", strconv.Itoa(d.Events())},
+		{"ln L (nats; each record conditioned on its first event)", g(ll)},
+		{"ln L per gap", g(ll / float64(gaps))},
+	}}
+	r.Tables = append(r.Tables, lt)
+	if plus < 0 {
+		return nil
+	}
+	ct := table{Title: "Model against data (z = (data - model)/SE of the data)", Columns: []string{"quantity", "model", "data", "95% interval", "z"}}
+	P := p.Transition()
+	counts := infer.TransitionCounts(d)
+	row := func(name string, model float64, e infer.Estimate) {
+		z := (e.Value - model) / e.SE
+		ct.Rows = append(ct.Rows, []string{name, g(model), g(e.Value), "[" + g(e.Lo) + ", " + g(e.Hi) + "]", g(z)})
+	}
+	for _, l := range []int{plus, minus} {
+		var tot int
+		for _, c := range counts[l] {
+			tot += c
+		}
+		k := counts[l][l]
+		lo, hi := infer.ClopperPearson(k, tot, 0.95)
+		ph := float64(k) / float64(tot)
+		row(fmt.Sprintf("P(%s|%s)", d.Labels[l], d.Labels[l]), P[l][l], infer.Estimate{Value: ph, SE: math.Sqrt(ph * (1 - ph) / float64(tot)), Lo: lo, Hi: hi})
+	}
+	row("effective affinity F (k_BT)", p.EffectiveAffinity(plus, minus), infer.EffectiveAffinity(d, uint8(plus), uint8(minus)))
+	sum, err := infer.Summarize(d, infer.SummaryOptions{Plus: d.Labels[plus], Minus: d.Labels[minus]})
+	if err != nil {
+		return err
+	}
+	q := make([]float64, len(d.Labels))
+	q[plus], q[minus] = 1, -1
+	J, _, err := p.Current(q)
+	if err != nil {
+		return err
+	}
+	row("current J (1/time)", J, sum.Pooled.Current)
+	r.Tables = append(r.Tables, ct)
+	r.Notes = append(r.Notes, "|z| > 2 flags a disagreement at about 95% for that quantity alone; agreement on these does not make the model true")
+	return nil
+}
