@@ -576,11 +576,11 @@ func (e *Evaluator) run(d *Data, grad bool, perRecord []float64) (*accum, error)
 // sd0 to the entries of D0 (direct), sg to exp(L delta), sd[l][e] to the
 // e-th entry of D_l, gw to the start law w0, gpi to pi; p, q, dg are the
 // eigen-coordinate sums whose combination gives the sensitivity to D0
-// through exp(D0 t) (see gradient.go); sz, sd2, cnt are the fast-path
+// through exp(D0 t) (see gradient.go); sz, szd, cnt are the fast-path
 // per-pair sums.
 type accum struct {
 	ll    float64
-	lmant float64 // sum of ln(mantissa) of the fast path's scaled products
+	lmant float64 // the fast path's ln L (mantissa, power of two and shifts)
 	grad  bool
 	sd0   []float64
 	sg    []float64
