@@ -29,15 +29,24 @@ func coreLoadModel(t testing.TB, path string) *models.Model {
 }
 
 // TestReferenceValues: ln L of shipped (model, records) pairs against
-// values computed outside Go by testdata/likelihood/reference.py (pure
-// Python, 50-digit decimal arithmetic, Taylor-series exponentials; see its
-// header for the command and reference.json for the Python version).
+// values computed outside Go by two independent scripts:
+// testdata/likelihood/reference.py (pure Python, 50-digit decimal
+// arithmetic, Taylor-series exponentials) and reference_scipy.py
+// (scipy.linalg.expm on every interval, float64; SciPy version in
+// reference-scipy.json). The command that made each file is in its header.
 // Tolerance 1e-12 relative: ln L is a sum of ~300 logs, each with a
 // relative rounding error ~ cond(V) eps ~ 1e-15, so the sum's relative
-// error is ~1e-15 (observed: <= 1.1e-15); 1e-12 leaves room for other
-// platforms and FMA contraction.
+// error is ~1e-15 (observed: <= 1.1e-15 against the decimal values, and the
+// two references agree to ~1e-15); 1e-12 leaves room for other platforms
+// and FMA contraction.
 func TestReferenceValues(t *testing.T) {
-	raw, err := os.ReadFile(filepath.Join("..", "testdata", "likelihood", "reference.json"))
+	for _, file := range []string{"reference.json", "reference-scipy.json"} {
+		t.Run(file, func(t *testing.T) { checkReference(t, file) })
+	}
+}
+
+func checkReference(t *testing.T, file string) {
+	raw, err := os.ReadFile(filepath.Join("..", "testdata", "likelihood", file))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -58,7 +67,7 @@ func TestReferenceValues(t *testing.T) {
 		t.Fatal(err)
 	}
 	if len(ref.Cases) < 3 {
-		t.Fatalf("reference.json has %d cases", len(ref.Cases))
+		t.Fatalf("%s has %d cases", file, len(ref.Cases))
 	}
 	for _, c := range ref.Cases {
 		want, err := strconv.ParseFloat(c.LogLik, 64)
