@@ -159,6 +159,40 @@
 // gradients (ModelLogLikGrad) follow by the chain rule through
 // models.Model.Jacobian.
 //
+// # Predicted observables
+//
+// A Predictor (NewPredictor) computes what a model predicts for data taken
+// through the same detection process: per-label detection probabilities
+// from the kernels and a dead time delta from the Instrument. After a
+// detected event the chain evolves under L for delta (events lost), then
+// under D0 until the next detected event, so the post-event kernels are
+//
+//	M_l = exp(L delta) (-D0)^{-1} D_l
+//
+// and the detected events form a Markov renewal process. (-D0)^{-1} is
+// computed by an elimination that only adds and multiplies non-negative
+// numbers, like the stationary-law reduction, so F keeps machine precision
+// for rates spread over many decades. From these come the embedded visible
+// chain P(l'|l) = alpha_l M_l' 1 (alpha_l the stationary post-l state law),
+// the stationary label law, the inter-transition densities psi_{l->l'}(t)
+// and their moments int t^k psi dt in closed form, the effective affinity
+// F = ln[P(+|+)/P(-|-)] (+-Inf when a one-way edge makes a probability 0),
+// the visible current J and its diffusion coefficient D (Var c(t) ~ 2 D t;
+// exact, from the derivatives of the scaled cumulant generating function
+// lambda(s), with or without dead time), lambda(s) itself (lambda(-F) = 0
+// for single-edge labels), the exact count-stopped law P_n(c) over windows
+// of n consecutive detected events by dynamic programming over (post-event
+// state, c): raw, split by first and last label, or post-selected so that
+// the first label is the reverse of the last, in which case
+// ln[P_n(c)/P_n(-c)] = F c exactly for a Markov label sequence; and, for
+// contrast, the exact law of c at a fixed clock time t from a stationary
+// start (uniformisation). Rates are in 1/time, times in the record's unit,
+// affinities in k_B T.
+//
+// A dead time breaks time-reversal symmetry (the instrument is blind after
+// an event, not before), so a network at detailed balance seen through a
+// dead time can show F != 0 and J != 0; missed events alone keep F = J = 0.
+//
 // # Parallelism and determinism
 //
 // The data are cut into work items by a rule that depends on the data only
