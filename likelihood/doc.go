@@ -191,7 +191,11 @@
 //
 // A dead time breaks time-reversal symmetry (the instrument is blind after
 // an event, not before), so a network at detailed balance seen through a
-// dead time can show F != 0 and J != 0; missed events alone keep F = J = 0.
+// dead time can show F != 0 and J != 0. So can unequal detection
+// probabilities of the two directions of the visible edge (the recorded
+// process is then the coarse-graining of a chain with entropy production
+// sigma + J ln(p_+/p_-), not sigma); missed events detected alike in both
+// directions keep F = J = 0.
 //
 // # Parallelism and determinism
 //

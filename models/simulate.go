@@ -79,8 +79,9 @@ func NewSimulator(net *Network, seed uint64) (*Simulator, error) {
 // SetDeadTime sets the instrument's dead time delta >= 0 (time units):
 // after each detected event, visible jumps in the following delta are lost
 // (the system still makes them). Zero, the default, means no dead time.
-// The dead time also runs at the start of a record: Reset and
-// StartStationary clear it, so the first event of a record is never lost.
+// The dead time does not carry over from one record to the next: Reset and
+// StartStationary clear it, so the instrument is ready at the start of a
+// record (as the likelihood's stationary start assumes).
 func (s *Simulator) SetDeadTime(delta float64) error {
 	if math.IsNaN(delta) || math.IsInf(delta, 0) || delta < 0 {
 		return fmt.Errorf("simulate: dead time %v: want a finite value >= 0", delta)

@@ -68,13 +68,17 @@ func cmdDescribe(args []string, stdout, stderr io.Writer) int {
 	}
 	ct := table{Title: "Fundamental cycles", Columns: []string{"cycle", "affinity (k_BT)", "cycle current"}}
 	for _, c := range net.CycleBasis() {
-		ct.Rows = append(ct.Rows, []string{c.Names(net.States), g(net.Affinity(c)), g(cur[c.Chord])})
+		a := g(net.Affinity(c))
+		if math.IsNaN(net.Affinity(c)) {
+			a = "undefined (one-way edges in both senses)"
+		}
+		ct.Rows = append(ct.Rows, []string{c.Names(net.States), a, g(cur[c.Chord])})
 	}
 	sigma := net.EntropyProduction(pi)
 	db, worst := net.DetailedBalance(1e-10)
 	sum := table{Title: "Summary", Columns: []string{"quantity", "value"}, Rows: [][]string{
 		{"entropy production sigma (k_B/time)", g(sigma)},
-		{"detailed balance", fmt.Sprintf("%v (max |cycle affinity| %s)", db, g(worst))},
+		{"detailed balance", fmt.Sprintf("%v (max |cycle affinity| %s)", db, strings.Replace(g(worst), "NaN", "undefined", 1))},
 	}}
 	r.Tables = append(modelTables(m), st, et, ct, sum)
 	if math.IsInf(sigma, 1) {
@@ -82,7 +86,7 @@ func cmdDescribe(args []string, stdout, stderr io.Writer) int {
 	}
 	if err := r.write(stdout, *format); err != nil {
 		fmt.Fprintf(stderr, "edgewise: %v\n", err)
-		return 2
+		return 1
 	}
 	return 0
 }
@@ -90,7 +94,7 @@ func cmdDescribe(args []string, stdout, stderr io.Writer) int {
 // modelTables shows a model's parameters, labels and affinity constraints.
 func modelTables(m *models.Model) []table {
 	g := func(x float64) string { return strconv.FormatFloat(x, 'g', 6, 64) }
-	pt := table{Title: "Parameters (rates in 1/time)", Columns: []string{"name", "kind", "value", "status", "lower", "upper"}}
+	pt := table{Title: "Parameters (rates in 1/time, detection probabilities without unit)", Columns: []string{"name", "kind", "value", "status", "lower", "upper"}}
 	for _, p := range m.Params {
 		kind, status := "rate", "free"
 		if p.Kind == models.DetectParam {
@@ -99,7 +103,11 @@ func modelTables(m *models.Model) []table {
 		if p.Fixed {
 			status = "fixed"
 		}
-		pt.Rows = append(pt.Rows, []string{p.Name, kind, g(p.Value), status, g(p.Lower), g(p.Upper)})
+		lo, hi := g(p.Lower), g(p.Upper)
+		if p.Fixed {
+			lo, hi = "", "" // bounds apply to fitting only
+		}
+		pt.Rows = append(pt.Rows, []string{p.Name, kind, g(p.Value), status, lo, hi})
 	}
 	vals, err := m.Values(m.Start())
 	for i, a := range m.Affinities {

@@ -87,15 +87,22 @@ func newFlags(name, help string, args []string, stdout, stderr io.Writer) *pflag
 }
 
 // parseFlags parses args; it returns -1 to go on, or the exit code (0 after
-// help, 2 after a usage error).
+// help, 2 after a usage error, which it reports on the flag set's output).
 func parseFlags(fs *pflag.FlagSet, args []string) int {
 	if err := fs.Parse(args); err != nil {
 		if err == pflag.ErrHelp {
 			return 0
 		}
+		fmt.Fprintf(fs.Output(), "edgewise %s: %v (see edgewise %s --help)\n", fs.Name(), err, fs.Name())
 		return 2
 	}
 	return -1
+}
+
+// usageError reports a usage problem of a subcommand and returns exit code 2.
+func usageError(stderr io.Writer, cmd, format string, a ...any) int {
+	fmt.Fprintf(stderr, "edgewise %s: %s (see edgewise %s --help)\n", cmd, fmt.Sprintf(format, a...), cmd)
+	return 2
 }
 
 // loadModel reads and parses a model spec and builds its network at the

@@ -44,6 +44,7 @@ func cmdPredict(args []string, stdout, stderr io.Writer) int {
 	format := fs.StringP("format", "f", "table", "output format: "+formats)
 	data := fs.StringP("data", "d", "", "records to set against the model (CSV or TSV; - for standard input)")
 	dead := fs.Float64("dead-time", 0, "instrument dead time after each recorded event (time units)")
+	frame := fs.Float64("frame", 0, "frame length of the records' timestamps, for the log-likelihood (time units; 0 = exact times)")
 	ns := fs.String("n", "5,20,100", "window lengths of the count-stopped law, comma separated")
 	labels := fs.String("labels", "", "forward and backward label of the visible edge, e.g. +,- (default: + and - when the model has them)")
 	out := fs.StringP("output", "o", "-", "output file (- for standard output)")
@@ -61,8 +62,16 @@ func cmdPredict(args []string, stdout, stderr io.Writer) int {
 	}
 	windows, err := parseInts(*ns)
 	if err != nil {
-		fmt.Fprintf(stderr, "edgewise: --n: %v\n", err)
-		return 2
+		return usageError(stderr, "predict", "--n: %v", err)
+	}
+	for _, n := range windows {
+		if n < 2 || n > maxWindow {
+			return usageError(stderr, "predict", "--n: window length %d: want 2 to %d events (the exact law costs n^2 operations)", n, maxWindow)
+		}
+	}
+	if err := checkOutput(*out, *force); err != nil {
+		fmt.Fprintf(stderr, "edgewise: %v\n", err)
+		return 1
 	}
 	path := fs.Arg(0)
 	src, m, net, err := loadModel(path)
@@ -70,10 +79,9 @@ func cmdPredict(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "edgewise: %v\n", err)
 		return 1
 	}
-	in := likelihood.Instrument{DeadTime: *dead}
+	in := likelihood.Instrument{DeadTime: *dead, Frame: *frame}
 	if err := in.Validate(); err != nil {
-		fmt.Fprintf(stderr, "edgewise: --dead-time: %v\n", err)
-		return 2
+		return usageError(stderr, "predict", "%v", err)
 	}
 	k, err := likelihood.NewKernels(net)
 	if err != nil {
@@ -87,11 +95,10 @@ func cmdPredict(args []string, stdout, stderr io.Writer) int {
 	}
 	plus, minus, err := visibleEdge(pred, k.Labels, *labels)
 	if err != nil {
-		fmt.Fprintf(stderr, "edgewise: --labels: %v\n", err)
-		return 2
+		return usageError(stderr, "predict", "--labels: %v", err)
 	}
-	r := &report{Tool: "edgewise " + version, Command: "predict", Input: path, Checksum: checksum(src)}
-	if err := predictTables(r, m, net, k, pred, plus, minus, windows); err != nil {
+	r := &report{Tool: "edgewise " + version, Command: "predict " + strings.Join(args, " "), Input: path, Checksum: checksum(src)}
+	if err := predictTables(r, m, net, k, pred, in, plus, minus, windows); err != nil {
 		fmt.Fprintf(stderr, "edgewise: %v\n", err)
 		return 1
 	}
@@ -122,9 +129,14 @@ func cmdPredict(args []string, stdout, stderr io.Writer) int {
 	return 0
 }
 
+// maxWindow is the longest count-stopped window predict computes.
+const maxWindow = 2000
+
 // visibleEdge picks the forward and backward label of the visible edge:
-// from "a,b" when given, else "+" and "-" when the model has them, else the
-// first label and its reverse. It returns -1, -1 when there is no such pair.
+// from "a,b" when given, else "+" and "-" when the model has them and they
+// are each other's reverse, else the first label that has a reverse. The
+// two labels must sit on exactly reversed transitions. It returns -1, -1
+// when there is no such pair.
 func visibleEdge(p *likelihood.Predictor, names []string, spec string) (int, int, error) {
 	idx := func(name string) int {
 		for i, n := range names {
@@ -140,9 +152,12 @@ func visibleEdge(p *likelihood.Predictor, names []string, spec string) (int, int
 		if !ok || pi < 0 || mi < 0 || pi == mi {
 			return -1, -1, fmt.Errorf("%q: want two different labels of the model (%s)", spec, strings.Join(names, ", "))
 		}
+		if p.Reverse(pi) != mi {
+			return -1, -1, fmt.Errorf("%q: %s and %s do not sit on reversed transitions, so they are not one visible edge", spec, names[pi], names[mi])
+		}
 		return pi, mi, nil
 	}
-	if pi, mi := idx("+"), idx("-"); pi >= 0 && mi >= 0 {
+	if pi, mi := idx("+"), idx("-"); pi >= 0 && mi >= 0 && p.Reverse(pi) == mi {
 		return pi, mi, nil
 	}
 	for l := range names {
@@ -153,7 +168,7 @@ func visibleEdge(p *likelihood.Predictor, names []string, spec string) (int, int
 	return -1, -1, nil
 }
 
-func predictTables(r *report, m *models.Model, net *models.Network, k *likelihood.Kernels, p *likelihood.Predictor, plus, minus int, windows []int) error {
+func predictTables(r *report, m *models.Model, net *models.Network, k *likelihood.Kernels, p *likelihood.Predictor, in likelihood.Instrument, plus, minus int, windows []int) error {
 	g := func(x float64) string { return num(x + 0) } // + 0 turns -0 into 0
 	names := k.Labels
 	P := p.Transition()
@@ -198,12 +213,17 @@ func predictTables(r *report, m *models.Model, net *models.Network, k *likelihoo
 			[]string{fmt.Sprintf("effective affinity F = ln[P(%s|%s)/P(%s|%s)] (k_BT)", names[plus], names[plus], names[minus], names[minus]), g(F)},
 			[]string{"entropy production sigma of the network (k_B/time)", g(sigma)},
 		)
-		if single {
+		switch {
+		case !single:
+			r.Notes = append(r.Notes, "a label sits on several directed edges: F*J and J^2/D are not lower bounds on sigma here, so they are not shown")
+		case in.DeadTime > 0:
+			r.Notes = append(r.Notes, "with a dead time the recorded sequence is not time-reversal symmetric (the instrument is blind after an event, not before), so F*J and J^2/D are not lower bounds on sigma and are not shown")
+		case k.Detect[plus] != k.Detect[minus]:
+			r.Notes = append(r.Notes, fmt.Sprintf("the two directions are detected with different probabilities (%g and %g), which breaks time-reversal symmetry: F*J and J^2/D are not lower bounds on sigma and are not shown", k.Detect[plus], k.Detect[minus]))
+		default:
 			sum.Rows = append(sum.Rows,
 				[]string{"lower bound F*J (k_B/time)", g(F * J)},
 				[]string{"lower bound J^2/D (k_B/time)", g(J * J / D)})
-		} else {
-			r.Notes = append(r.Notes, "a label sits on several directed edges: F*J and J^2/D are not lower bounds on sigma here, so they are not shown")
 		}
 		if len(m.Affinities) > 0 {
 			r.Notes = append(r.Notes, "the spec imposes cycle affinities (see describe); F is what the visible edge shows of them")

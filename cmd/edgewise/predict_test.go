@@ -121,3 +121,105 @@ func TestPredictErrors(t *testing.T) {
 		t.Errorf("help: code %d", code)
 	}
 }
+
+// TestPredictBoundsOnlyWhenValid: at detailed balance (sigma = 0) an
+// instrument that detects the two directions with different probabilities,
+// or one with a dead time, shows F*J > 0; predict must then not call F*J or
+// J^2/D a lower bound (the recorded process is the coarse-graining of a
+// chain whose entropy production is sigma + J ln(p+/p-), or not Markov at
+// all; design notes, section 8).
+func TestPredictBoundsOnlyWhenValid(t *testing.T) {
+	src, err := os.ReadFile("../../testdata/balanced.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	dir := t.TempDir()
+	uneq := filepath.Join(dir, "uneq.toml")
+	os.WriteFile(uneq, append(src, []byte("\n[label.out]\ndetect = 0.5\n")...), 0o644)
+	for _, args := range [][]string{{uneq}, {"../../testdata/balanced.toml", "--dead-time", "0.3"}} {
+		r := predictJSON(t, append(args, "--n", "5")...)
+		F := cell(t, r, "Predicted rates", "effective affinity", 1)
+		if sigma := cell(t, r, "Predicted rates", "entropy production", 1); sigma != 0 || math.Abs(F) < 1e-3 {
+			t.Fatalf("%v: want sigma = 0 and F != 0 for this test to mean something; sigma %g F %g", args, sigma, F)
+		}
+		for _, tb := range r.Tables {
+			for _, row := range tb.Rows {
+				if strings.Contains(row[0], "lower bound") {
+					t.Errorf("%v: %q shown although it is not a bound here", args, row[0])
+				}
+			}
+		}
+		found := false
+		for _, n := range r.Notes {
+			found = found || strings.Contains(n, "not lower bounds")
+		}
+		if !found {
+			t.Errorf("%v: no note saying why the bounds are not shown: %v", args, r.Notes)
+		}
+	}
+	// Equal detection keeps the bound, and the stamp records the options.
+	r := predictJSON(t, "../../testdata/ring3.toml", "--n", "5", "--dead-time", "0")
+	if _, ok := findRow(r, "lower bound F*J"); !ok {
+		t.Error("bound missing for a valid instrument")
+	}
+	if !strings.Contains(r.Command, "--dead-time 0") {
+		t.Errorf("stamp %q does not record the options", r.Command)
+	}
+}
+
+func findRow(r report, key string) ([]string, bool) {
+	for _, tb := range r.Tables {
+		for _, row := range tb.Rows {
+			if strings.HasPrefix(row[0], key) {
+				return row, true
+			}
+		}
+	}
+	return nil, false
+}
+
+// TestUsageErrorsSayWhy: a bad flag or value is reported on stderr with
+// the command's name and exit code 2, never silently.
+func TestUsageErrorsSayWhy(t *testing.T) {
+	dir := t.TempDir()
+	nonrev := filepath.Join(dir, "nonrev.toml")
+	os.WriteFile(nonrev, []byte("states=[\"A\",\"B\",\"C\"]\n[[edge]]\nbetween=[\"A\",\"B\"]\nrates=[\"k\",\"m\"]\nlabels=[\"+\",\"\"]\n[[edge]]\nbetween=[\"B\",\"C\"]\nrates=[\"k\",\"m\"]\nlabels=[\"\",\"-\"]\n[[edge]]\nbetween=[\"C\",\"A\"]\nrates=[\"k\",\"m\"]\n[param.k]\nvalue=2\n[param.m]\nvalue=1\n"), 0o644)
+	cases := []struct {
+		args []string
+		want string
+	}{
+		{[]string{"describe", "../../testdata/ring3.toml", "--bogus"}, "edgewise describe: unknown flag: --bogus"},
+		{[]string{"simulate", "../../testdata/ring3.toml", "--events", "abc"}, "edgewise simulate: invalid argument"},
+		{[]string{"simulate", "../../testdata/ring3.toml", "--events", "0"}, "--events and --records must be at least 1"},
+		{[]string{"predict", "../../testdata/ring3.toml", "--n", "100000"}, "want 2 to 2000 events"},
+		{[]string{"predict", "../../testdata/ring3.toml", "--dead-time", "-1"}, "dead time -1"},
+		{[]string{"predict", nonrev, "--labels", "+,-"}, "do not sit on reversed transitions"},
+	}
+	for _, c := range cases {
+		var out, errb bytes.Buffer
+		if code := run(c.args, &out, &errb); code != 2 || !strings.Contains(errb.String(), c.want) {
+			t.Errorf("%v: code %d, stderr %q; want 2 and %q", c.args, code, errb.String(), c.want)
+		}
+	}
+	// Without --labels, labels that are not one edge give no current
+	// table, but the rest of the prediction is still made.
+	var out, errb bytes.Buffer
+	if code := run([]string{"predict", nonrev}, &out, &errb); code != 0 || !strings.Contains(out.String(), "no pair of labels forms one visible edge") {
+		t.Errorf("non-reverse labels: code %d: %s %s", code, errb.String(), out.String())
+	}
+}
+
+// TestPredictFrames: records with frame-limited timestamps are possible
+// under the model only when predict is told the frame length.
+func TestPredictFrames(t *testing.T) {
+	dir := t.TempDir()
+	fr := filepath.Join(dir, "fr.csv")
+	var out, errb bytes.Buffer
+	if code := run([]string{"simulate", "../../testdata/ring3.toml", "-n", "2000", "--frame", "0.5", "-o", fr}, &out, &errb); code != 0 {
+		t.Fatal(errb.String())
+	}
+	r := predictJSON(t, "../../testdata/ring3.toml", "--data", fr, "--frame", "0.5", "--n", "5")
+	if ll := cell(t, r, "Log-likelihood", "ln L per gap", 1); !(ll < 0) {
+		t.Errorf("framed ln L per gap %g: a probability per gap must be below 1", ll)
+	}
+}

@@ -49,18 +49,29 @@ func (r *report) write(w io.Writer, format string) error {
 		enc.SetIndent("", "  ")
 		return enc.Encode(r)
 	case "csv":
-		cw := csv.NewWriter(w)
-		cw.Write([]string{"# " + r.stamp()})
-		for _, t := range r.Tables {
-			cw.Write([]string{"# " + t.Title})
+		// Comment lines are written raw (never quoted), so a reader that
+		// skips lines starting with "#" sees only the tables; a blank line
+		// separates tables.
+		comment := func(s string) {
+			fmt.Fprintf(w, "# %s\n", strings.NewReplacer("\n", " ", "\r", " ").Replace(s))
+		}
+		comment(r.stamp())
+		for i, t := range r.Tables {
+			if i > 0 {
+				fmt.Fprintln(w)
+			}
+			comment(t.Title)
+			cw := csv.NewWriter(w)
 			cw.Write(t.Columns)
 			cw.WriteAll(t.Rows)
+			if err := cw.Error(); err != nil {
+				return err
+			}
 		}
 		for _, n := range r.Notes {
-			cw.Write([]string{"# note: " + n})
+			comment("note: " + n)
 		}
-		cw.Flush()
-		return cw.Error()
+		return nil
 	case "markdown":
 		// "|" inside a cell (as in P(+|+)) would split the column.
 		esc := strings.NewReplacer("|", `\|`).Replace
@@ -79,8 +90,11 @@ func (r *report) write(w io.Writer, format string) error {
 			}
 			fmt.Fprintln(w)
 		}
-		for _, n := range r.Notes {
-			fmt.Fprintf(w, "> %s\n", n)
+		if len(r.Notes) > 0 {
+			fmt.Fprint(w, "Notes:\n\n")
+			for _, n := range r.Notes {
+				fmt.Fprintf(w, "- %s\n", esc(n))
+			}
 		}
 		return nil
 	case "latex":

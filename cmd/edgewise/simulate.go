@@ -2,6 +2,7 @@ package main
 
 import (
 	"bufio"
+	"errors"
 	"fmt"
 	"io"
 	"os"
@@ -39,9 +40,16 @@ func cmdSimulate(args []string, stdout, stderr io.Writer) int {
 	if code := parseFlags(fs, args); code >= 0 {
 		return code
 	}
-	if fs.NArg() != 1 || *events < 1 || *records < 1 {
+	if fs.NArg() != 1 {
 		fs.Usage()
 		return 2
+	}
+	if *events < 1 || *records < 1 {
+		return usageError(stderr, "simulate", "--events and --records must be at least 1")
+	}
+	if err := checkOutput(*out, *force); err != nil {
+		fmt.Fprintf(stderr, "edgewise: %v\n", err)
+		return 1
 	}
 	path := fs.Arg(0)
 	src, _, net, err := loadModel(path)
@@ -103,12 +111,12 @@ func cmdSimulate(args []string, stdout, stderr io.Writer) int {
 // a rename, so a reader never sees a partial file; it refuses to replace an
 // existing file unless force is set.
 func writeAtomic(path string, force bool, gen func(io.Writer) error) error {
-	if _, err := os.Stat(path); err == nil && !force {
-		return fmt.Errorf("%s exists; use --force to overwrite", path)
+	if err := checkOutput(path, force); err != nil {
+		return err
 	}
 	tmp, err := os.CreateTemp(filepath.Dir(path), "."+filepath.Base(path)+".tmp*")
 	if err != nil {
-		return err
+		return fmt.Errorf("cannot write %s: %w", path, errors.Unwrap(err))
 	}
 	defer os.Remove(tmp.Name())
 	if err := gen(tmp); err != nil {
@@ -120,8 +128,24 @@ func writeAtomic(path string, force bool, gen func(io.Writer) error) error {
 		tmp.Close()
 		return err
 	}
+	if err := tmp.Sync(); err != nil {
+		tmp.Close()
+		return fmt.Errorf("writing %s: %w", path, err)
+	}
 	if err := tmp.Close(); err != nil {
 		return err
 	}
 	return os.Rename(tmp.Name(), path)
+}
+
+// checkOutput fails when path exists and force is not set, so that a
+// command can refuse before doing its work. "-" (standard output) is fine.
+func checkOutput(path string, force bool) error {
+	if path == "-" || force {
+		return nil
+	}
+	if _, err := os.Stat(path); err == nil {
+		return fmt.Errorf("%s exists; use --force to overwrite", path)
+	}
+	return nil
 }
