@@ -34,6 +34,15 @@ type affinitySystem struct {
 	lu    mat.LU     // of C_S
 }
 
+// SolveError reports that affinity constraint Index (0-based) cannot be
+// met with finite rates at the given parameter values.
+type SolveError struct {
+	Index int
+	Msg   string
+}
+
+func (e *SolveError) Error() string { return fmt.Sprintf("affinity[%d]: %s", e.Index, e.Msg) }
+
 // constraintError is one problem with an affinity constraint.
 type constraintError struct {
 	index int    // constraint, 0-based
@@ -136,7 +145,7 @@ func (m *Model) checkAffinities() []constraintError {
 			ok = false
 		default:
 			if j, dup := solvedBy[a.Solve]; dup {
-				bad(i, "solve", "%q is already solved by constraint %d; each constraint needs its own rate", a.Solve, j+1)
+				bad(i, "solve", "%q is already solved by affinity[%d]; each constraint needs its own rate", a.Solve, j)
 				ok = false
 			}
 			solvedBy[a.Solve] = i
@@ -158,13 +167,13 @@ func (m *Model) checkAffinities() []constraintError {
 				for k, b := range basis {
 					implied += y[k] * sys.v[b]
 					if math.Abs(y[k]) > 1e-9 {
-						with = append(with, fmt.Sprint(b+1))
+						with = append(with, fmt.Sprintf("affinity[%d]", b))
 					}
 				}
 				if math.Abs(implied-sys.v[i]) <= 1e-9*(1+math.Abs(implied)) {
-					bad(i, "cycle", "repeats constraint %s: that already fixes this cycle's affinity at %.6g k_BT", strings.Join(with, ", "), implied)
+					bad(i, "cycle", "repeats %s: that already fixes this cycle's affinity at %.6g k_BT", strings.Join(with, ", "), implied)
 				} else {
-					bad(i, "value", "contradicts constraint %s: that fixes this cycle's affinity at %.6g k_BT, not %g", strings.Join(with, ", "), implied, sys.v[i])
+					bad(i, "value", "contradicts %s: that fixes this cycle's affinity at %.6g k_BT, not %g", strings.Join(with, ", "), implied, sys.v[i])
 				}
 				continue
 			}
@@ -271,8 +280,8 @@ func (s *affinitySystem) apply(val map[string]float64) error {
 	}
 	for i, col := range s.solve {
 		w := math.Exp(y.AtVec(i))
-		if w == 0 || math.IsInf(w, 0) || math.IsNaN(w) {
-			return fmt.Errorf("solved rate %s = exp(%g) is out of floating-point range", s.names[col], y.AtVec(i))
+		if !finitePositive(w) {
+			return &SolveError{Index: i, Msg: fmt.Sprintf("solved rate %s = exp(%g) is out of floating-point range", s.names[col], y.AtVec(i))}
 		}
 		val[s.names[col]] = w
 	}

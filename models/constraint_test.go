@@ -186,15 +186,15 @@ func TestAffinityConstraintErrors(t *testing.T) {
 			"affinity[0].solve: missing: name the rate this constraint determines (one of kbo, kbs, kob, kos, ksb, kso)"},
 		{nil, both + aff(osbo, "1", "zz"), "\"zz\" is not a rate of this cycle"},
 		{[]string{"kso"}, kco + aff(osbo, "1", "kso") + aff(`"Bound", "Open", "Shut", "Bound"`, "1", "kbo"),
-			"affinity[1].cycle: repeats constraint 1"},
+			"affinity[1].cycle: repeats affinity[0]"},
 		{[]string{"kso"}, kco + aff(osbo, "1", "kso") + aff(`"Open", "Bound", "Shut", "Open"`, "1", "kbo"),
-			"affinity[1].value: contradicts constraint 1: that fixes this cycle's affinity at -1 k_BT, not 1"},
+			"affinity[1].value: contradicts affinity[0]: that fixes this cycle's affinity at -1 k_BT, not 1"},
 		// The outer cycle is the sum of the two inner ones: 1 + 4 = 5.
 		{[]string{"kbs"}, aff(osbo, "1", "kbo") + aff(`"Bound", "Charged", "Open", "Bound"`, "4", "kco") + aff(`"Open", "Shut", "Bound", "Charged", "Open"`, "6", "kbs"),
-			"affinity[2].value: contradicts constraint 1, 2: that fixes this cycle's affinity at 5 k_BT, not 6"},
-		{nil, both + aff(osbo, "1", "kbo"), "param.kbo: parameter is solved from affinity constraint 1 and takes no [param] table"},
+			"affinity[2].value: contradicts affinity[0], affinity[1]: that fixes this cycle's affinity at 5 k_BT, not 6"},
+		{nil, both + aff(osbo, "1", "kbo"), "param.kbo: parameter is solved from affinity[0] and takes no [param] table"},
 		{nil, kco + aff(osbo, "1", "kbo") + aff(`"Open", "Bound", "Charged", "Open"`, "-4", "kbo"),
-			"affinity[1].solve: \"kbo\" is already solved by constraint 1"},
+			"affinity[1].solve: \"kbo\" is already solved by affinity[0]"},
 	}
 	for _, c := range cases {
 		_, err := Parse(strings.NewReader(drop(src, c.drop...)+c.extra), "x.toml")
@@ -209,7 +209,7 @@ func TestAffinityConstraintErrors(t *testing.T) {
 	// The three-constraint system is fine when it is consistent; the third
 	// then repeats the first two.
 	_, err = Parse(strings.NewReader(drop(src, "kbs")+aff(osbo, "1", "kbo")+aff(`"Bound", "Charged", "Open", "Bound"`, "4", "kco")+aff(`"Open", "Shut", "Bound", "Charged", "Open"`, "5", "kbs")), "x.toml")
-	if err == nil || !strings.Contains(err.Error(), "affinity[2].cycle: repeats constraint 1, 2") {
+	if err == nil || !strings.Contains(err.Error(), "affinity[2].cycle: repeats affinity[0], affinity[1]") {
 		t.Errorf("consistent dependent constraint: got %v", err)
 	}
 	// A constraint through a one-way edge.

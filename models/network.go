@@ -120,28 +120,28 @@ func (n *Network) Validate() error {
 	seen := make(map[[2]int]int)
 	for i, e := range n.Edges {
 		if e.From < 0 || e.From >= k || e.To < 0 || e.To >= k {
-			errs = append(errs, fmt.Errorf("edge %d: state index out of range", i))
+			errs = append(errs, fmt.Errorf("edge[%d]: state index out of range", i))
 			continue
 		}
 		if e.From == e.To {
-			errs = append(errs, fmt.Errorf("edge %d: self-loop at state %s", i, n.States[e.From]))
+			errs = append(errs, fmt.Errorf("edge[%d]: self-loop at state %s", i, n.States[e.From]))
 		}
 		key := [2]int{min(e.From, e.To), max(e.From, e.To)}
 		if j, ok := seen[key]; ok {
-			errs = append(errs, fmt.Errorf("edge %d: duplicate of edge %d (%s-%s)", i, j, n.States[key[0]], n.States[key[1]]))
+			errs = append(errs, fmt.Errorf("edge[%d]: duplicate of edge[%d] (%s-%s)", i, j, n.States[key[0]], n.States[key[1]]))
 		}
 		seen[key] = i
 		for d := 0; d < 2; d++ {
 			r := e.Rate[d]
 			if math.IsNaN(r) || math.IsInf(r, 0) || r < 0 {
-				errs = append(errs, fmt.Errorf("edge %d (%s-%s): rate %g is not a finite non-negative number", i, n.States[e.From], n.States[e.To], r))
+				errs = append(errs, fmt.Errorf("edge[%d] (%s-%s): rate %g is not a finite non-negative number", i, n.States[e.From], n.States[e.To], r))
 			}
 			if l := e.Label[d]; l != Hidden && (l < 0 || l >= len(n.Labels)) {
-				errs = append(errs, fmt.Errorf("edge %d: label index %d out of range", i, l))
+				errs = append(errs, fmt.Errorf("edge[%d]: label index %d out of range", i, l))
 			}
 		}
 		if e.Rate[0] == 0 && e.Rate[1] == 0 {
-			errs = append(errs, fmt.Errorf("edge %d (%s-%s): both rates are zero", i, n.States[e.From], n.States[e.To]))
+			errs = append(errs, fmt.Errorf("edge[%d] (%s-%s): both rates are zero", i, n.States[e.From], n.States[e.To]))
 		}
 	}
 	for _, l := range n.Labels {

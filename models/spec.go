@@ -146,16 +146,18 @@ type rawLabel struct {
 	Detect any `toml:"detect"` // a number, or a parameter name
 }
 
-// Parse reads a TOML model spec; file names the source in errors. All
-// problems found are returned together, each as a *SpecError.
+// Parse reads a TOML model spec; file names the source in errors. Each
+// problem is a *SpecError with file, line and key, and all problems of the
+// spec's text are returned together; the checks that need a well-formed
+// spec (affinity constraints, strong connectivity) run once the rest is
+// clean.
 func Parse(r io.Reader, file string) (*Model, error) {
 	src, err := io.ReadAll(r)
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", file, err)
 	}
-	var raw rawSpec
-	md, err := toml.NewDecoder(bytes.NewReader(src)).Decode(&raw)
-	if err != nil {
+	var doc map[string]any
+	if _, err := toml.NewDecoder(bytes.NewReader(src)).Decode(&doc); err != nil {
 		var pe toml.ParseError
 		if errors.As(err, &pe) {
 			return nil, &SpecError{File: file, Line: pe.Position.Line, Msg: pe.Message}
@@ -167,12 +169,13 @@ func Parse(r io.Reader, file string) (*Model, error) {
 	bad := func(key, format string, a ...any) {
 		errs = append(errs, &SpecError{File: file, Line: loc.line(key), Key: key, Msg: fmt.Sprintf(format, a...)})
 	}
-	for _, k := range md.Undecoded() {
-		bad(k.String(), "unknown key")
-	}
+	raw := readRaw(doc, bad)
 	m := &Model{Name: raw.Name, Description: raw.Description, States: raw.States}
 	index := map[string]int{}
 	for i, s := range raw.States {
+		if why := badName(s); why != "" {
+			bad("states", "state name %q %s", s, why)
+		}
 		if _, dup := index[s]; dup {
 			bad("states", "state %q listed twice", s)
 		}
@@ -203,7 +206,7 @@ func Parse(r io.Reader, file string) (*Model, error) {
 		}
 		pk := [2]string{min(e.Between[0], e.Between[1]), max(e.Between[0], e.Between[1])}
 		if j, dup := pairs[pk]; dup {
-			bad(key+".between", "duplicate of edge %d (%s-%s)", j+1, pk[0], pk[1])
+			bad(key+".between", "duplicate of edge[%d] (%s-%s)", j, pk[0], pk[1])
 		}
 		pairs[pk] = i
 		want := 2
@@ -230,9 +233,15 @@ func Parse(r io.Reader, file string) (*Model, error) {
 			bad(key+".labels", "a one-way edge has no backward direction to label")
 		}
 		for _, l := range es.Labels {
-			if l != "" {
-				usedLabel[l] = true
+			if l == "" {
+				continue
 			}
+			if why := badName(l); why != "" {
+				bad(key+".labels", "label %q %s", l, why)
+			} else if l == "end" {
+				bad(key+".labels", "label \"end\" is reserved: in records files a row labelled end gives the record's end time")
+			}
+			usedLabel[l] = true
 		}
 		m.Edges = append(m.Edges, es)
 	}
@@ -291,7 +300,7 @@ func Parse(r io.Reader, file string) (*Model, error) {
 			bad(key, "parameter is declared but no rate or detection uses it")
 		}
 		if i, ok := solved[name]; ok {
-			bad(key, "parameter is solved from affinity constraint %d and takes no [param] table", i+1)
+			bad(key, "parameter is solved from affinity[%d] and takes no [param] table", i)
 			continue
 		}
 		if p.Value == nil {
@@ -310,8 +319,8 @@ func Parse(r io.Reader, file string) (*Model, error) {
 		}
 		v := q.Value
 		switch {
-		case kind == RateParam && (!(v > 0) || math.IsInf(v, 0)):
-			bad(key+".value", "rate %g is not a finite positive number", v)
+		case kind == RateParam && !finitePositive(v):
+			bad(key+".value", "rate %g is not a finite positive number of normal size (at least %g)", v, minRate)
 		case kind == DetectParam && !(v > 0 && v <= 1):
 			bad(key+".value", "detection probability %g is not in (0, 1]", v)
 		case math.IsNaN(q.Lower) || q.Lower < 0 || math.IsInf(q.Lower, 0):
@@ -361,7 +370,10 @@ func Parse(r io.Reader, file string) (*Model, error) {
 	}
 	if len(errs) == 0 {
 		net, err := m.Network(m.Start())
-		if err != nil {
+		var se *SolveError
+		if errors.As(err, &se) {
+			bad(fmt.Sprintf("affinity[%d].value", se.Index), "%s at the start values", se.Msg)
+		} else if err != nil {
 			errs = append(errs, &SpecError{File: file, Msg: err.Error()})
 		} else if err := net.Validate(); err != nil {
 			errs = append(errs, &SpecError{File: file, Msg: err.Error()})
@@ -465,7 +477,7 @@ func locate(src []byte) locator {
 	table := ""
 	counts := map[string]int{}
 	for n := 1; sc.Scan(); n++ {
-		s := strings.TrimSpace(sc.Text())
+		s := strings.TrimSpace(stripComment(sc.Text()))
 		switch {
 		case strings.HasPrefix(s, "[["):
 			name := unquote(strings.TrimSuffix(strings.TrimPrefix(s, "[["), "]]"))
@@ -496,6 +508,24 @@ func locate(src []byte) locator {
 		}
 	}
 	return l
+}
+
+// stripComment removes a TOML comment (a '#' outside quotes) from a line.
+func stripComment(s string) string {
+	var quote rune
+	for i, r := range s {
+		switch {
+		case quote != 0:
+			if r == quote {
+				quote = 0
+			}
+		case r == '"' || r == '\'':
+			quote = r
+		case r == '#':
+			return s[:i]
+		}
+	}
+	return s
 }
 
 func unquote(s string) string {

@@ -6,14 +6,49 @@ import (
 	"io"
 	"math"
 	"strconv"
+	"strings"
 )
+
+// tomlQuote writes s as a TOML basic string: backslash, quote and control
+// characters escaped the TOML way (Go's strconv.Quote uses escapes such as
+// \a and \x00 that TOML does not have).
+func tomlQuote(s string) string {
+	var b strings.Builder
+	b.WriteByte('"')
+	for _, r := range s {
+		switch r {
+		case '"':
+			b.WriteString(`\"`)
+		case '\\':
+			b.WriteString(`\\`)
+		case '\b':
+			b.WriteString(`\b`)
+		case '\t':
+			b.WriteString(`\t`)
+		case '\n':
+			b.WriteString(`\n`)
+		case '\f':
+			b.WriteString(`\f`)
+		case '\r':
+			b.WriteString(`\r`)
+		default:
+			if r < 0x20 || r == 0x7f {
+				fmt.Fprintf(&b, `\u%04X`, r)
+			} else {
+				b.WriteRune(r)
+			}
+		}
+	}
+	b.WriteByte('"')
+	return b.String()
+}
 
 // Write writes m as a TOML spec that Parse reads back to an equal Model, so
 // a fitted model can be simulated and fitted again. Floats are written with
 // the shortest representation that round-trips exactly.
 func (m *Model) Write(w io.Writer) error {
 	bw := bufio.NewWriter(w)
-	q := strconv.Quote
+	q := tomlQuote
 	f := func(x float64) string { return strconv.FormatFloat(x, 'g', -1, 64) }
 	list := func(xs []string) string {
 		s := "["

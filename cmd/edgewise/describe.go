@@ -115,7 +115,7 @@ func modelTables(m *models.Model) []table {
 		if err == nil {
 			v = g(vals[a.Solve])
 		}
-		pt.Rows = append(pt.Rows, []string{a.Solve, "rate", v, fmt.Sprintf("solved (constraint %d)", i+1), "", ""})
+		pt.Rows = append(pt.Rows, []string{a.Solve, "rate", v, fmt.Sprintf("solved (affinity[%d])", i), "", ""})
 	}
 	lt := table{Title: "Labels", Columns: []string{"label", "detection", "transitions"}}
 	for _, l := range m.Labels {
@@ -135,9 +135,9 @@ func modelTables(m *models.Model) []table {
 	}
 	tables := []table{pt, lt}
 	if len(m.Affinities) > 0 {
-		at := table{Title: "Affinity constraints", Columns: []string{"#", "cycle", "affinity (k_BT)", "solved rate"}}
+		at := table{Title: "Affinity constraints", Columns: []string{"constraint", "cycle", "affinity (k_BT)", "solved rate"}}
 		for i, a := range m.Affinities {
-			at.Rows = append(at.Rows, []string{strconv.Itoa(i + 1), strings.Join(a.Cycle, "-"), g(a.Value), a.Solve})
+			at.Rows = append(at.Rows, []string{fmt.Sprintf("affinity[%d]", i), strings.Join(a.Cycle, "-"), g(a.Value), a.Solve})
 		}
 		tables = append(tables, at)
 	}

@@ -54,7 +54,7 @@ func TestDescribeConstraintsAndLatex(t *testing.T) {
 	if code := run([]string{"describe", "../../testdata/offedge.toml", "-f", "csv"}, &out, &errb); code != 0 {
 		t.Fatalf("code %d: %s", code, errb.String())
 	}
-	for _, want := range []string{"kbo,rate,0.362438,solved (constraint 1)", "1,Open-Shut-Bound-Open,1,kbo", "Shut-Bound-Open-Shut,1,", "Bound-Charged-Open-Bound,4,"} {
+	for _, want := range []string{"kbo,rate,0.362438,solved (affinity[0])", "affinity[0],Open-Shut-Bound-Open,1,kbo", "Shut-Bound-Open-Shut,1,", "Bound-Charged-Open-Bound,4,"} {
 		if !strings.Contains(out.String(), want) {
 			t.Errorf("missing %q in\n%s", want, out.String())
 		}
