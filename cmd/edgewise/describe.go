@@ -27,6 +27,8 @@ Options:
 func cmdDescribe(args []string, stdout, stderr io.Writer) int {
 	fs := newFlags("describe", describeHelp, args, stdout, stderr)
 	format := fs.StringP("format", "f", "table", "output format: "+formats)
+	out := fs.StringP("output", "o", "-", "output file (- for standard output)")
+	force := fs.Bool("force", false, "overwrite an existing output file")
 	if code := parseFlags(fs, args); code >= 0 {
 		return code
 	}
@@ -84,7 +86,13 @@ func cmdDescribe(args []string, stdout, stderr io.Writer) int {
 	if math.IsInf(sigma, 1) {
 		r.Notes = append(r.Notes, "a one-way edge carries current: every affinity through it is infinite")
 	}
-	if err := r.write(stdout, *format); err != nil {
+	gen := func(w io.Writer) error { return r.write(w, *format) }
+	if *out == "-" {
+		err = gen(stdout)
+	} else {
+		err = writeAtomic(*out, *force, gen)
+	}
+	if err != nil {
 		fmt.Fprintf(stderr, "edgewise: %v\n", err)
 		return 1
 	}
