@@ -2,6 +2,8 @@ package main
 
 import (
 	"bytes"
+	"encoding/csv"
+	"encoding/json"
 	"os"
 	"path/filepath"
 	"strings"
@@ -23,15 +25,44 @@ func TestRunExitCodes(t *testing.T) {
 
 // TestDescribeRing3: the cycle affinity of the shipped ring equals
 // ln(3*2*1.5/(0.5*0.4*0.6)) = 4.31749 (cycle affinity definition,
-// Schnakenberg, Rev. Mod. Phys. 48, 571 (1976)), in every format.
+// Schnakenberg, Rev. Mod. Phys. 48, 571 (1976)), in every format: the csv
+// is parsed with comment lines skipped, the json decoded, and the cell is
+// found in the cycles table, with its sign.
 func TestDescribeRing3(t *testing.T) {
+	want := []string{"B-C-A-B", "4.31749"}
 	for _, f := range []string{"table", "markdown", "latex", "csv", "json"} {
 		var out, errb bytes.Buffer
 		if code := run([]string{"describe", "../../testdata/ring3.toml", "--format", f}, &out, &errb); code != 0 {
 			t.Fatalf("%s: code %d: %s", f, code, errb.String())
 		}
-		if !strings.Contains(out.String(), "4.31749") {
-			t.Errorf("%s: affinity missing:\n%s", f, out.String())
+		found := false
+		switch f {
+		case "csv":
+			cr := csv.NewReader(strings.NewReader(out.String()))
+			cr.Comment, cr.FieldsPerRecord = '#', -1
+			rows, err := cr.ReadAll()
+			if err != nil {
+				t.Fatalf("csv does not parse: %v", err)
+			}
+			for _, row := range rows {
+				found = found || (len(row) >= 2 && row[0] == want[0] && row[1] == want[1])
+			}
+		case "json":
+			var r report
+			if err := json.Unmarshal(out.Bytes(), &r); err != nil {
+				t.Fatalf("json does not parse: %v", err)
+			}
+			for _, tb := range r.Tables {
+				for _, row := range tb.Rows {
+					found = found || (tb.Title == "Fundamental cycles" && row[0] == want[0] && row[1] == want[1])
+				}
+			}
+		default:
+			sep := map[string]string{"table": " │ ", "markdown": " | ", "latex": " & "}[f]
+			found = strings.Contains(out.String(), want[0]+sep+want[1])
+		}
+		if !found {
+			t.Errorf("%s: cycle %s with affinity %s missing:\n%s", f, want[0], want[1], out.String())
 		}
 	}
 	var out, errb bytes.Buffer
