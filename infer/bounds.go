@@ -3,7 +3,6 @@ package infer
 import (
 	"fmt"
 	"math"
-	"math/rand/v2"
 	"slices"
 
 	"edgewise/likelihood"
@@ -69,10 +68,13 @@ type Bounds struct {
 	J, F Estimate
 	// FJ = F*J (k_B/time). sigma >= F J holds when each label sits on one
 	// directed edge, for any detection probability (design section 8).
+	// When the plug-in F is infinite (a ++ or -- pair never seen) FJ is
+	// the one-sided bound F_lo*J (Value +Inf, Lo the bound; see oneSidedFJ).
 	FJ Estimate
-	// D is the diffusion coefficient of the current, Var c(t) ~ 2 D t + b
+	// D is the diffusion coefficient of the current, Var c(t) ~ a + 2 D t
 	// at long t (1/time), fitted by weighted least squares to the
-	// Variance points with T >= FitFrom. TUR = J^2/D is the bound of the
+	// Variance points with T >= FitFrom: the same estimator, interval and
+	// seed as Summarize's Part.Diffusion (diffusion.go). TUR = J^2/D is the bound of the
 	// thermodynamic uncertainty relation (Barato and Seifert, PRL 114,
 	// 158101 (2015)): Var c(t)/<c(t)>^2 >= 2/(sigma t) for any current.
 	D, TUR           Estimate
@@ -100,10 +102,10 @@ type VariancePoint struct {
 // rate from the events of one visible edge (labels opt.Labels):
 //
 //  1. F*J, with F = ln[P(+|+)/P(-|-)] and J the visible current;
-//  2. the TUR bound J^2/D, with D from Var c(t) ~ 2 D t over non-overlapping
-//     windows of durations t = t_max 2^-j, t_max = Duration/400 (at least 32
-//     mean gaps, at most the longest record), fitted on the four longest
-//     (t >= t_max/8);
+//  2. the TUR bound J^2/D, with D from Var c(t) ~ a + 2 D t over
+//     non-overlapping windows of durations t = t_max 2^-j, t_max =
+//     Duration/400 (at least 32 mean gaps, at most the longest record),
+//     fitted on the four longest (t >= t_max/8) (diffusion.go);
 //  3. the transition-based waiting-time bound (Harunari, Dutta, Polettini
 //     and Roldan, PRX 12, 041026 (2022); van der Meer, Ertel and Seifert,
 //     PRX 12, 031025 (2022))
@@ -114,9 +116,9 @@ type VariancePoint struct {
 //     N++/Duration KL(f++||f--) + N--/Duration KL(f--||f++),
 //     with each KL from KLDivergenceKNN on log-gaps.
 //
-// Intervals: F*J, D and the TUR bound from a block bootstrap (blocks of
-// t_max of one record, drawn with replacement, seed opt.Seed; percentile
-// intervals). The waiting-time and transition parts from a delete-one-group
+// Intervals: J, F*J, D and the TUR bound from one block bootstrap (blocks
+// of t_max of one record, drawn with replacement, seed opt.Seed;
+// percentile intervals), so that their correlations are kept. The waiting-time and transition parts from a delete-one-group
 // jackknife over opt.Groups contiguous groups of blocks with a Student t
 // quantile: a bootstrap draw repeats gaps, and the repeats are zero
 // nearest-neighbour distances, which the kNN estimator cannot take.
@@ -151,80 +153,50 @@ func EntropyBounds(d *likelihood.Data, opt BoundOptions) (*Bounds, error) {
 	}
 	b := &Bounds{Claimed: !opt.MultiEdge, Events: events, Duration: span}
 	b.F = EffectiveAffinity(d, fw, bw, AffinityOptions{Level: opt.Level})
-	// The longest window: 1/400 of the observed time, but at least 32 mean
-	// gaps so that small data sets still give a variance curve. Windows
-	// never cross records: with short records the longest windows come
-	// from the longest record only.
-	mgap := span / float64(events)
-	tmax := math.Min(math.Max(span/400, 32*mgap), bLongest(d))
-	var grid []float64
-	for t := tmax; t >= mgap/2 && len(grid) < 16; t /= 2 {
-		grid = append(grid, t)
-	}
-	blocks := boundBlocks(d, fw, tmax, grid)
-	b.BootstrapBlocks = len(blocks)
-	tot := sumBoundBlocks(blocks, len(grid))
+	cf := newCurrentFit(d.Records, fw, bw, false)
+	grid := cf.grid
+	b.BootstrapBlocks = len(cf.blocks)
 	for j, t := range grid {
-		b.Variance = append(b.Variance, VariancePoint{T: t, Windows: int(tot.w[j]), Mean: tot.mean(j), Var: tot.variance(j)})
+		b.Variance = append(b.Variance, VariancePoint{T: t, Windows: int(cf.tot.w[j]), Mean: cf.tot.mean(j), Var: cf.tot.variance(j)})
 	}
-	nfit := min(4, len(grid))
-	b.FitTo = tmax
-	if nfit > 0 {
-		b.FitFrom = grid[nfit-1]
+	b.FitTo = cf.tmax
+	if cf.nfit > 0 {
+		b.FitFrom = grid[cf.nfit-1]
 	}
-	weights := make([]float64, nfit)
-	for j := range weights {
-		if v := tot.variance(j); v > 0 {
-			weights[j] = tot.w[j] / (2 * v * v)
-		}
-	}
-	stats := func(t boundTotals) (j, f, fj, dd, tur float64) {
+	stats := func(t *boundTotals) (j, f, fj, dd, tur float64) {
 		j = t.c / t.dur
 		f, _ = fluctAffinity(t.pairs)
-		dd = t.diffusion(grid[:nfit], weights)
+		dd = cf.diffusion(t)
 		return j, f, f * j, dd, j * j / dd
 	}
-	j0, f0, fj0, d0, tur0 := stats(tot)
+	j0, f0, fj0, d0, tur0 := stats(&cf.tot)
 	var bj, bfj, bd, btur []float64
-	if len(blocks) >= minBootBlocks {
-		rng := rand.New(rand.NewPCG(opt.Seed, 0xb0b0))
-		for range opt.Boot {
-			draw := make([]*boundBlock, len(blocks))
-			for i := range draw {
-				draw[i] = &blocks[rng.IntN(len(blocks))]
-			}
-			j, f, fj, dd, tur := stats(sumBoundBlockPtrs(draw, len(grid)))
-			bj = append(bj, j)
-			if !math.IsInf(f, 0) && !math.IsNaN(f) {
-				bfj = append(bfj, fj)
-			}
-			if dd > 0 {
-				bd = append(bd, dd)
-				btur = append(btur, tur)
-			}
+	cf.bootstrap(opt.Boot, opt.Seed, func(t *boundTotals) {
+		j, f, fj, dd, tur := stats(t)
+		bj = append(bj, j)
+		if !math.IsInf(f, 0) && !math.IsNaN(f) {
+			bfj = append(bfj, fj)
 		}
-	}
-	method := fmt.Sprintf("block bootstrap percentile, %d blocks of %.4g time units, %d replicates, seed %d", len(blocks), tmax, opt.Boot, opt.Seed)
-	b.J = bootEstimate(j0, bj, opt.Level, method)
+		if dd > 0 {
+			bd = append(bd, dd)
+			btur = append(btur, tur)
+		}
+	})
+	method := cf.method()
+	b.J = cf.currentEstimate(j0, d0, bj, opt.Level)
 	b.FJ = bootEstimate(fj0, bfj, opt.Level, method)
-	b.D = bootEstimate(d0, bd, opt.Level, method)
+	b.D = cf.diffusionEstimate(d0, bd, opt.Level)
 	b.TUR = bootEstimate(tur0, btur, opt.Level, method)
-	w0 := 0
-	if len(grid) > 0 {
-		w0 = int(tot.w[0])
-	}
-	if nfit < 4 || tmax < 8*mgap || w0 < 50 {
-		note := fmt.Sprintf("too few events for the variance curve (longest window %.3g mean gaps, %d such windows; want >= 8 and >= 50): D and the TUR bound are rough", tmax/mgap, w0)
-		b.D.Note, b.TUR.Note = joinNote(b.D.Note, note), joinNote(b.TUR.Note, note)
+	if b.D.Note != "" {
+		b.TUR.Note = joinNote(b.TUR.Note, "from D: "+b.D.Note)
 	}
 	if !(d0 > 0) {
-		b.D.Note = joinNote(b.D.Note, "the fitted slope of Var c(t) is not positive or not defined")
 		b.TUR = nanEstimate(b.TUR.Method, "D is not positive: no TUR bound")
 	}
 	if math.IsInf(f0, 0) || math.IsNaN(f0) {
-		b.FJ = nanEstimate("", "F is infinite or undefined: "+b.F.Note)
+		b.FJ = oneSidedFJ(b.F, j0, b.J)
 	}
-	b.waitingTime(d, fw, blocks, tmax, opt)
+	b.waitingTime(d, fw, cf.blocks, cf.tmax, opt)
 	if opt.MultiEdge {
 		why := "not claimed: a label may sit on several directed edges, so the reverse of an event is not known and F*J, J^2/D and the waiting-time sum can exceed sigma (design section 8)"
 		b.Reason = why
@@ -235,14 +207,29 @@ func EntropyBounds(d *likelihood.Data, opt BoundOptions) (*Bounds, error) {
 	return b, nil
 }
 
-// bLongest is the longest record span.
-func bLongest(d *likelihood.Data) float64 {
-	l := 0.0
-	for r := range d.Records {
-		t0, t1 := fluctSpan(&d.Records[r])
-		l = math.Max(l, t1-t0)
+// oneSidedFJ is the F*J bound when the plug-in F is infinite: F carries
+// the one-sided Clopper-Pearson bound of EffectiveAffinity (F >= Lo when
+// F = +Inf, F <= Hi when F = -Inf), so
+//
+//	F = +Inf, J > 0:  F J >= Lo J,
+//	F = -Inf, J < 0:  F J >= Hi J   (multiplying F <= Hi by J < 0),
+//
+// at the level of F's bound, with J at its point value. The result has
+// Value +Inf (the plug-in product), Lo the bound and Hi +Inf. When J has
+// the other sign (or is zero) the data give no such bound: NaN.
+func oneSidedFJ(F Estimate, j float64, J Estimate) Estimate {
+	const method = "one-sided: F bound (Clopper-Pearson) times J"
+	var lo float64
+	switch {
+	case math.IsInf(F.Value, 1) && j > 0 && !math.IsNaN(F.Lo) && !math.IsInf(F.Lo, 0):
+		lo = F.Lo * j
+	case math.IsInf(F.Value, -1) && j < 0 && !math.IsNaN(F.Hi) && !math.IsInf(F.Hi, 0):
+		lo = F.Hi * j
+	default:
+		return nanEstimate("", fmt.Sprintf("F is infinite or undefined and J = %.4g gives no one-sided bound: %s", j, F.Note))
 	}
-	return l
+	note := fmt.Sprintf("F is infinite in the plug-in estimate; one-sided bound F*J >= %.4g (F's one-sided Clopper-Pearson limit times J = %.4g; the uncertainty of J, SE %.2g, is not included)", lo, j, J.SE)
+	return Estimate{Value: math.Inf(1), SE: math.NaN(), Lo: lo, Hi: math.Inf(1), Method: method, Note: note}
 }
 
 // bootEstimate is a point value with the SD and percentile interval of its
@@ -260,125 +247,6 @@ func bootEstimate(v float64, reps []float64, level float64, method string) Estim
 	e.Lo = quantileSorted(s, (1-level)/2)
 	e.Hi = quantileSorted(s, 1-(1-level)/2)
 	return e
-}
-
-// boundBlock is a stretch of at most t_max of one record: its duration,
-// current, pair counts and, per window duration of the grid, the number of
-// windows inside it and the sums of c and c^2 over them.
-type boundBlock struct {
-	dur, c  float64
-	pairs   [2][2]int64
-	w, s, q []float64
-}
-
-// boundTotals is a sum of blocks.
-type boundTotals struct {
-	dur, c  float64
-	pairs   [2][2]int64
-	w, s, q []float64
-}
-
-func (t *boundTotals) mean(j int) float64 { return t.s[j] / t.w[j] }
-
-func (t *boundTotals) variance(j int) float64 {
-	n := t.w[j]
-	if n < 2 {
-		return math.NaN()
-	}
-	m := t.s[j] / n
-	return (t.q[j] - n*m*m) / (n - 1)
-}
-
-// diffusion fits Var c(t) = a + 2 D t by weighted least squares on the
-// first len(ts) grid points and returns D.
-func (t *boundTotals) diffusion(ts, w []float64) float64 {
-	if len(ts) < 2 {
-		if len(ts) == 1 {
-			return t.variance(0) / (2 * ts[0])
-		}
-		return math.NaN()
-	}
-	y := make([]float64, len(ts))
-	for j := range ts {
-		y[j] = t.variance(j)
-	}
-	_, slope := stat.LinearRegression(ts, y, w, false)
-	return slope / 2
-}
-
-func sumBoundBlocks(blocks []boundBlock, ng int) boundTotals {
-	ptr := make([]*boundBlock, len(blocks))
-	for i := range blocks {
-		ptr[i] = &blocks[i]
-	}
-	return sumBoundBlockPtrs(ptr, ng)
-}
-
-func sumBoundBlockPtrs(blocks []*boundBlock, ng int) boundTotals {
-	t := boundTotals{w: make([]float64, ng), s: make([]float64, ng), q: make([]float64, ng)}
-	for _, b := range blocks {
-		t.dur += b.dur
-		t.c += b.c
-		addPairCounts(&t.pairs, b.pairs)
-		for j := range ng {
-			t.w[j] += b.w[j]
-			t.s[j] += b.s[j]
-			t.q[j] += b.q[j]
-		}
-	}
-	return t
-}
-
-// boundBlocks cuts each record, from its first event, into blocks of
-// duration tmax (the last one shorter) and fills their statistics; the
-// windows of each grid duration are laid from the block start and kept
-// when they end inside the block. The first event of a record marks its
-// origin and is not counted.
-func boundBlocks(d *likelihood.Data, fw uint8, tmax float64, grid []float64) []boundBlock {
-	var blocks []boundBlock
-	for r := range d.Records {
-		rec := &d.Records[r]
-		t0, t1 := fluctSpan(rec)
-		nb := max(1, int(math.Ceil((t1-t0)/tmax)))
-		k := 1
-		for bi := 0; bi < nb; bi++ {
-			bs := t0 + float64(bi)*tmax
-			be := math.Min(t0+float64(bi+1)*tmax, t1)
-			if bi == nb-1 {
-				be = t1
-			}
-			b := boundBlock{dur: be - bs, w: make([]float64, len(grid)), s: make([]float64, len(grid)), q: make([]float64, len(grid))}
-			k0 := k
-			for ; k < len(rec.Time) && (rec.Time[k] <= be || bi == nb-1); k++ {
-				if rec.Label[k] == fw {
-					b.c++
-				} else {
-					b.c--
-				}
-				b.pairs[fluctSide(rec.Label[k-1], fw)][fluctSide(rec.Label[k], fw)]++
-			}
-			for j, t := range grid {
-				nw := int((be - bs) / t * (1 + 1e-12))
-				i := k0
-				for w := 0; w < nw; w++ {
-					end := bs + float64(w+1)*t
-					c := 0.0
-					for ; i < k && rec.Time[i] <= end; i++ {
-						if rec.Label[i] == fw {
-							c++
-						} else {
-							c--
-						}
-					}
-					b.w[j]++
-					b.s[j] += c
-					b.q[j] += c * c
-				}
-			}
-			blocks = append(blocks, b)
-		}
-	}
-	return blocks
 }
 
 // waitingTime fills the sequence, waiting-time and transition parts and

@@ -159,3 +159,24 @@ func TestBoundsTinyRecords(t *testing.T) {
 		t.Errorf("TUR %+v", b.TUR)
 	}
 }
+
+// TestBoundsEmptyRecord: a record without events (possible through the
+// library) adds an empty block and changes no estimate: D, J and F*J equal
+// those without it, with the same seed.
+func TestBoundsEmptyRecord(t *testing.T) {
+	u, w, _ := flSmallRing()
+	d := flSimulate(t, flRing(u, w), 20000, 2, 6)
+	want, err := EntropyBounds(d, BoundOptions{Seed: 2})
+	if err != nil {
+		t.Fatal(err)
+	}
+	d.Records = append(d.Records, likelihood.Record{End: math.NaN()})
+	got, err := EntropyBounds(d, BoundOptions{Seed: 2})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got.D.Value != want.D.Value || got.J.Value != want.J.Value || got.FJ.Value != want.FJ.Value || got.BootstrapBlocks != want.BootstrapBlocks+1 {
+		t.Errorf("with an empty record: D %v J %v F*J %v (%d blocks); without: %v %v %v (%d)",
+			got.D.Value, got.J.Value, got.FJ.Value, got.BootstrapBlocks, want.D.Value, want.J.Value, want.FJ.Value, want.BootstrapBlocks)
+	}
+}

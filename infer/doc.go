@@ -36,11 +36,18 @@
 // infinite; the estimate then carries the one-sided bound that the
 // Clopper-Pearson limits of P(+|+) and P(-|-) support.
 //
-// The current's diffusion coefficient and Fano factor come from
-// non-overlapping windows of fixed length w (50 events on average by
-// default): with c_i = n_+ - n_- in window i, D = s_c^2 / (2 w) and
-// Fano = s_c^2 / |mean c_i| (= 2 D / |J|, the randomness parameter for unit
-// steps), s_c^2 the sample variance over windows.
+// The current's diffusion coefficient D (1/time) is half the long-time
+// slope of Var c(t) ~ a + 2 D t, c(t) = n_+ - n_- over a window of duration
+// t, fitted by weighted least squares at the four longest of the window
+// durations t_max 2^-j, with a block-bootstrap interval (diffusion.go). A
+// single window length would give s^2/(2t) = D + a/(2t), biased by the
+// window's boundary offset a. Summarize and EntropyBounds share this
+// estimator, its blocks and its bootstrap stream, so both give the same D
+// and interval for the same data, replicate count and seed. J and the
+// activity take their intervals from the same bootstrap. The Fano factor
+// Var c(t)/|mean c(t)| is given at one stated window length (50 events on
+// average by default), offset included; it tends to the randomness
+// parameter 2 D / |J| for windows much longer than the labels' memory.
 //
 // Inter-transition times are summarised per pair (l, l'): count, mean,
 // median and coefficient of variation of the times from an l event to the

@@ -272,7 +272,7 @@ type fluctBlock struct {
 	pairs [2][2]int64
 }
 
-// countBlocks cuts each record into windows of n events and groups them into
+// fluctCountBlocks cuts each record into windows of n events and groups them into
 // blocks of at least minEvents events (at most maxBlocks blocks overall),
 // returning the raw and post-selected blocks. The two share pair counts.
 func fluctCountBlocks(d *likelihood.Data, fw uint8, n, minEvents int) (raw, post []fluctBlock) {
@@ -282,6 +282,7 @@ func fluctCountBlocks(d *likelihood.Data, fw uint8, n, minEvents int) (raw, post
 	}
 	per := max(1, (minEvents+n-1)/n, (total+maxBlocks-1)/maxBlocks) // windows per block
 	width := 2*n + 1
+	step, side := fluctTables(fw)
 	for r := range d.Records {
 		lab := d.Records[r].Label
 		nw := len(lab) / n
@@ -294,14 +295,10 @@ func fluctCountBlocks(d *likelihood.Data, fw uint8, n, minEvents int) (raw, post
 				win := lab[w*n : (w+1)*n]
 				c := 0
 				for _, l := range win {
-					if l == fw {
-						c++
-					} else {
-						c--
-					}
+					c += int(step[l])
 				}
 				rb.count[c+n]++
-				if (win[0] == fw) != (win[n-1] == fw) {
+				if side[win[0]] != side[win[n-1]] {
 					pb.count[c+n]++
 				}
 			}
@@ -312,7 +309,7 @@ func fluctCountBlocks(d *likelihood.Data, fw uint8, n, minEvents int) (raw, post
 				k1 = len(lab)
 			}
 			for k := max(k0, 1); k < k1; k++ {
-				rb.pairs[fluctSide(lab[k-1], fw)][fluctSide(lab[k], fw)]++
+				rb.pairs[side[lab[k-1]]][side[lab[k]]]++
 			}
 			pb.pairs = rb.pairs
 			raw = append(raw, rb)
@@ -322,7 +319,18 @@ func fluctCountBlocks(d *likelihood.Data, fw uint8, n, minEvents int) (raw, post
 	return raw, post
 }
 
-// recordSpan returns the observed span of a record: from its first event to
+// fluctTables returns, per label, the step of the current (+1 for fw, -1
+// for any other label: the data hold one visible edge) and the pair side
+// (fluctSide), as tables: branching on random labels mispredicts.
+func fluctTables(fw uint8) (step [256]int32, side [256]uint8) {
+	for i := range step {
+		step[i], side[i] = -1, 1
+	}
+	step[fw], side[fw] = 1, 0
+	return step, side
+}
+
+// fluctSpan returns the observed span of a record: from its first event to
 // its End when known, else to its last event.
 func fluctSpan(rec *likelihood.Record) (t0, t1 float64) {
 	if len(rec.Time) == 0 {
@@ -335,7 +343,7 @@ func fluctSpan(rec *likelihood.Record) (t0, t1 float64) {
 	return t0, t1
 }
 
-// observedTime returns the summed span of all records and the number of
+// fluctObserved returns the summed span of all records and the number of
 // events after the first of each record (the events that fall inside the
 // spans).
 func fluctObserved(d *likelihood.Data) (span float64, events int) {
@@ -348,7 +356,7 @@ func fluctObserved(d *likelihood.Data) (span float64, events int) {
 	return span, events
 }
 
-// timeBlocks cuts each record's span, from its first event, into windows of
+// fluctTimeBlocks cuts each record's span, from its first event, into windows of
 // duration T = n * span / events (so that a window holds n events on
 // average; the first event of each record only marks the origin) and
 // groups them into blocks of at least minEvents expected events. It returns
@@ -365,52 +373,70 @@ func fluctTimeBlocks(d *likelihood.Data, fw uint8, n, minEvents int) ([]fluctBlo
 		total += int((t1 - t0) / T)
 	}
 	per := max(1, (minEvents+n-1)/n, (total+maxBlocks-1)/maxBlocks)
-	cs := make([]int32, 0, total) // window currents
-	wb := make([]int32, 0, total) // window blocks
+	step, side := fluctTables(fw)
+	cs := make([]int32, total) // window currents, record after record
+	type recWindows struct{ off, nw, base int }
+	rw := make([]recWindows, len(d.Records))
 	var pairsBy [][2][2]int64
-	cmax := 0
-	nblock := 0
+	off := 0
+	inv := 1 / T
 	for r := range d.Records {
 		rec := &d.Records[r]
 		t0, t1 := fluctSpan(rec)
 		nw := int((t1 - t0) / T)
 		nb := max(1, (nw+per-1)/per)
-		base := nblock
-		nblock += nb
+		base := len(pairsBy)
+		rw[r] = recWindows{off, nw, base}
 		for range nb {
 			pairsBy = append(pairsBy, [2][2]int64{})
 		}
-		k := 1
-		for w := 0; w < nw; w++ {
-			end := t0 + float64(w+1)*T
-			c := 0
-			for ; k < len(rec.Time) && rec.Time[k] <= end; k++ {
-				if rec.Label[k] == fw {
-					c++
-				} else {
-					c--
-				}
+		cw := cs[off : off+nw]
+		off += nw
+		bt := T * float64(per)
+		times, labels := rec.Time, rec.Label[:len(rec.Time)]
+		inWindows := true
+		for k := 1; k < len(times); k++ {
+			b := min(nb-1, int((times[k-1]-t0)/bt))
+			pairsBy[base+b][side[labels[k-1]]][side[labels[k]]]++
+			if !inWindows {
+				continue
 			}
-			cs = append(cs, int32(c))
-			wb = append(wb, int32(base+w/per))
-			cmax = max(cmax, c, -c)
-		}
-		for k := 1; k < len(rec.Time); k++ {
-			b := min(nb-1, int((rec.Time[k-1]-t0)/(T*float64(per))))
-			pairsBy[base+b][fluctSide(rec.Label[k-1], fw)][fluctSide(rec.Label[k], fw)]++
+			// Event k goes to the window w with end(w-1) < t <= end(w),
+			// end(w) = t0 + (w+1) T, as a sweep over the windows would
+			// put it (window 0 also takes t <= t0); the product only
+			// guesses w, the comparisons decide.
+			t := times[k]
+			w := max(0, int((t-t0)*inv))
+			for w > 0 && t <= t0+float64(w)*T {
+				w--
+			}
+			for t > t0+float64(w+1)*T {
+				w++
+			}
+			if w >= nw {
+				inWindows = false // times are sorted: no later event is in a window
+				continue
+			}
+			cw[w] += step[labels[k]]
 		}
 	}
-	blocks := make([]fluctBlock, nblock)
+	cmax := 0
+	for _, c := range cs {
+		cmax = max(cmax, int(c), -int(c))
+	}
+	blocks := make([]fluctBlock, len(pairsBy))
 	for i := range blocks {
 		blocks[i] = fluctBlock{count: make([]int64, 2*cmax+1), pairs: pairsBy[i]}
 	}
-	for i, c := range cs {
-		blocks[wb[i]].count[int(c)+cmax]++
+	for _, x := range rw {
+		for w, c := range cs[x.off : x.off+x.nw] {
+			blocks[x.base+w/per].count[int(c)+cmax]++
+		}
 	}
 	return blocks, T, cmax
 }
 
-// symmetryFromBlocks sums the blocks, fits the fluctuation line and
+// fluctSymmetry sums the blocks, fits the fluctuation line and
 // compares it with F by a block bootstrap seeded by opt.Seed and stream.
 func fluctSymmetry(kind string, blocks []fluctBlock, offset int, dur float64, opt FluctOptions, stream uint64) Symmetry {
 	s := Symmetry{Kind: kind, Duration: dur, Offset: offset, Count: make([]int64, 2*offset+1)}
@@ -455,7 +481,7 @@ func addPairCounts(dst *[2][2]int64, p [2][2]int64) {
 	}
 }
 
-// logRatios returns the log-ratio points of a histogram and the number of
+// fluctLogRatios returns the log-ratio points of a histogram and the number of
 // c > 0 left out because one side has no window.
 func fluctLogRatios(count []int64, offset int, level float64) ([]RatioPoint, int) {
 	var pts []RatioPoint
@@ -481,7 +507,7 @@ func fluctLogRatios(count []int64, offset int, level float64) ([]RatioPoint, int
 	return pts, skipped
 }
 
-// fitSlope is the weighted least-squares slope through the origin of the
+// fluctFitSlope is the weighted least-squares slope through the origin of the
 // points and its SE; NaN when there is no point.
 func fluctFitSlope(pts []RatioPoint) (slope, se float64) {
 	var sxy, sxx float64
@@ -497,7 +523,7 @@ func fluctFitSlope(pts []RatioPoint) (slope, se float64) {
 	return sxy / sxx, 1 / math.Sqrt(sxx)
 }
 
-// slopeOfCounts is fitSlope of a histogram, without intervals (bootstrap).
+// fluctSlopeOfCounts is fluctFitSlope of a histogram, without intervals (bootstrap).
 func fluctSlopeOfCounts(count []int64, offset int) float64 {
 	var sxy, sxx float64
 	for c := 1; c <= offset; c++ {
@@ -517,7 +543,7 @@ func fluctSlopeOfCounts(count []int64, offset int) float64 {
 	return sxy / sxx
 }
 
-// compare sets the slope against F. With at least minBootBlocks blocks and
+// fluctCompare sets the slope against F. With at least minBootBlocks blocks and
 // opt.Boot > 0 the SE of slope - F comes from a block bootstrap (blocks
 // drawn with replacement, both statistics recomputed from the same draw),
 // which keeps their correlation; otherwise the two SEs are added in

@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"errors"
 	"math"
+	"math/big"
 	"math/rand/v2"
 	"strconv"
 	"strings"
@@ -142,18 +143,22 @@ func TestReadErrors(t *testing.T) {
 }
 
 // TestParseDecimal: the fast path agrees bit for bit with strconv.ParseFloat
-// (the reference) on random plain decimals of up to 18 digits and on edge
-// cases, and declines what it cannot do exactly.
+// (the reference) on random plain decimals of up to 21 digits, on exact
+// halfway cases between two float64s (round half to even; built with
+// math/big), and on edge cases, and declines what it cannot do exactly.
 func TestParseDecimal(t *testing.T) {
 	cases := []string{"0", "-0", "+0.0", "1.", ".5", "00.50", "0.000123", "123456789012345", "1234567890123456",
-		"9007199254740993", "1e22", "1e23", "1e-22", "1.5e-23", "-2.5E+3", "1e", "1e+", ".", "-", "1.2.3", "0x1p3", "1_0", "0e999", "12e-5"}
+		"9007199254740993", "9007199254740993.0", "18446744073709551615", "9999999999999999999", "10000000000000000000",
+		"1e22", "1e23", "1e-22", "1.5e-23", "-2.5E+3", "1e", "1e+", ".", "-", "1.2.3", "0x1p3", "1_0", "0e999", "12e-5",
+		"4503599627370496.5", "4503599627370497.5", "0.1000000000000000055511151231257827", "14000.699999999999",
+		"1.2345678901234567e+06", "9.999999999999999999e-8"}
 	rng := rand.New(rand.NewPCG(8, 9))
-	for i := 0; i < 200000; i++ {
+	for i := 0; i < 300000; i++ {
 		var b []byte
 		if rng.IntN(4) == 0 {
 			b = append(b, '-')
 		}
-		nd := 1 + rng.IntN(18)
+		nd := 1 + rng.IntN(21)
 		dot := rng.IntN(nd + 1)
 		for j := 0; j < nd; j++ {
 			if j == dot {
@@ -162,11 +167,21 @@ func TestParseDecimal(t *testing.T) {
 			b = append(b, byte('0'+rng.IntN(10)))
 		}
 		if rng.IntN(3) == 0 {
-			b = strconv.AppendInt(append(b, 'e'), int64(rng.IntN(60)-30), 10)
+			b = strconv.AppendInt(append(b, 'e'), int64(rng.IntN(70)-35), 10)
 		}
 		cases = append(cases, string(b))
 	}
-	fast := 0
+	// Halfway cases: (2M+1) 2^-(j+1) with M a 53-bit integer lies midway
+	// between the float64s M 2^-j and (M+1) 2^-j; written in full it has j+1
+	// decimals and 17-19 significant digits for j <= 2.
+	for i := 0; i < 20000; i++ {
+		M := uint64(1)<<52 + rng.Uint64N(1<<52)
+		j := rng.IntN(3)
+		x := new(big.Float).SetPrec(200).SetUint64(2*M + 1)
+		x.SetMantExp(x, -(j + 1))
+		cases = append(cases, x.Text('f', j+1))
+	}
+	fast, long := 0, 0
 	for _, c := range cases {
 		got, ok := parseDecimal([]byte(c))
 		want, err := strconv.ParseFloat(c, 64)
@@ -174,12 +189,15 @@ func TestParseDecimal(t *testing.T) {
 			continue
 		}
 		fast++
+		if strings.TrimLeft(strings.Trim(strings.ReplaceAll(c, ".", ""), "-"), "0") != "" && len(c) > 17 {
+			long++
+		}
 		if err != nil || math.Float64bits(got) != math.Float64bits(want) {
-			t.Fatalf("%q: fast %v, strconv %v (%v)", c, got, want, err)
+			t.Fatalf("%q: fast %v (%#x), strconv %v (%#x) (%v)", c, got, math.Float64bits(got), want, math.Float64bits(want), err)
 		}
 	}
-	if fast < len(cases)/2 {
-		t.Errorf("fast path took only %d of %d", fast, len(cases))
+	if fast < len(cases)/2 || long < 10000 {
+		t.Errorf("fast path took only %d of %d (%d long)", fast, len(cases), long)
 	}
 }
 

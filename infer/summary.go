@@ -10,18 +10,24 @@ import (
 
 // SummaryOptions tune Summarize. The zero value gives 95% intervals, labels
 // "+" and "-" as the forward and backward crossings of the visible edge,
-// delta-method intervals for F and windows of 50 events on average for the
-// current's fluctuations.
+// delta-method intervals for F, a block bootstrap of 200 replicates (seed
+// 0) for J, the activity and D, and windows of 50 events on average for
+// the Fano factor.
 type SummaryOptions struct {
 	Plus, Minus string  // forward and backward label names; "" means "+" and "-"
 	Level       float64 // confidence level; 0 means 0.95
-	// Bootstrap and Seed are passed to EffectiveAffinity (pooled estimate;
-	// a per-record estimate resamples blocks of its own record).
+	// Bootstrap is passed to EffectiveAffinity (pooled estimate; a
+	// per-record estimate resamples blocks of its own record).
 	Bootstrap int
-	Seed      uint64
-	// WindowEvents is the mean number of visible events per window used to
-	// estimate the current's diffusion coefficient and Fano factor; 0
-	// means 50.
+	// Seed fixes every bootstrap: that of F and that of J, the activity
+	// and D (a different stream, the same as EntropyBounds uses).
+	Seed uint64
+	// DiffusionBoot is the number of block-bootstrap replicates for J, the
+	// activity and D; 0 means DefaultDiffusionBoot (as BoundOptions.Boot),
+	// negative means none (then normal intervals from sqrt(2D/duration)).
+	DiffusionBoot int
+	// WindowEvents is the mean number of visible events per window of the
+	// Fano factor; 0 means 50.
 	WindowEvents float64
 	PerRecord    bool // also summarise each record on its own
 }
@@ -52,25 +58,28 @@ type Part struct {
 	Ends     int     // records whose end is known
 	Counts   []int   // events per label, all events
 	Rates    []Estimate
-	// Current J = (n_+ - n_-)/duration and activity (n_+ + n_-)/duration,
-	// counted like Rates. Their SE is sqrt(2 D / duration) with D from the
-	// window estimate (Var c(t) ~ 2 D t), the Poisson SE when there are too
-	// few windows.
+	// Current J = (n_+ - n_-)/duration and activity (n_+ + n_-)/duration
+	// (1/time), counted like Rates, with block-bootstrap percentile
+	// intervals (the blocks of Diffusion); with fewer than 10 blocks the SE
+	// is sqrt(2D/duration) (Var c(t) ~ 2 D t), or Poisson when D is not
+	// positive.
 	Current, Activity Estimate
 	Pairs             [][]int      // N[l][l'] consecutive pairs
 	Next              [][]Estimate // P(l'|l) = N[l][l']/N[l][.], Clopper-Pearson interval
 	Affinity          Estimate     // F = ln[P(+|+)/P(-|-)]
 	Gaps              [][]GapStats // inter-transition times per pair (l, l')
-	// Window is the window length used for Diffusion and Fano, Windows the
-	// number of complete windows. Diffusion D = s^2/(2 Window) with s^2 the
-	// sample variance of the current c over windows; Fano = s^2/|mean c|,
-	// which for unit steps is the randomness parameter 2D/|J| (windows
-	// much longer than the correlation time of the labels are needed for
-	// these to reach their long-time limits).
-	Window    float64
-	Windows   int
+	// Diffusion is the current's diffusion coefficient D (1/time), half
+	// the long-time slope of Var c(t) = a + 2 D t (see diffusion.go): the
+	// same estimator, interval and seed as EntropyBounds' D.
 	Diffusion Estimate
-	Fano      Estimate
+	// Fano is Var c(t)/|mean c(t)| at the one window length Window (time
+	// units; WindowEvents events on average) over Windows complete
+	// windows. It includes the boundary offset a/(|J| t), so it reaches
+	// the long-time randomness parameter 2D/|J| only for windows much
+	// longer than the correlation time of the labels.
+	Window  float64
+	Windows int
+	Fano    Estimate
 }
 
 // GapStats summarises the inter-transition times of one pair (l, l'): the
@@ -101,6 +110,9 @@ func Summarize(d *likelihood.Data, opt SummaryOptions) (*Summary, error) {
 	if !(opt.WindowEvents > 0) {
 		opt.WindowEvents = 50
 	}
+	if opt.DiffusionBoot == 0 {
+		opt.DiffusionBoot = DefaultDiffusionBoot
+	}
 	s := &Summary{Labels: d.Labels, Plus: slices.Index(d.Labels, opt.Plus), Minus: slices.Index(d.Labels, opt.Minus), Level: opt.Level}
 	if opt.Plus == opt.Minus {
 		s.Plus, s.Minus = -1, -1
@@ -111,10 +123,10 @@ func Summarize(d *likelihood.Data, opt SummaryOptions) (*Summary, error) {
 	if s.Plus >= 0 && s.Minus >= 0 && len(d.Labels) > 2 {
 		s.Notes = append(s.Notes, fmt.Sprintf("the data have %d labels: F, current and fluctuations use only %q and %q", len(d.Labels), opt.Plus, opt.Minus))
 	}
-	s.Pooled = s.part(d, d.Records, opt, true)
+	s.Pooled = s.part(d, d.Records, opt)
 	if opt.PerRecord {
 		for i := range d.Records {
-			p := s.part(d, d.Records[i:i+1], opt, false)
+			p := s.part(d, d.Records[i:i+1], opt)
 			p.ID = d.Records[i].ID
 			s.Records = append(s.Records, p)
 		}
@@ -122,7 +134,7 @@ func Summarize(d *likelihood.Data, opt SummaryOptions) (*Summary, error) {
 	return s, nil
 }
 
-func (s *Summary) part(d *likelihood.Data, recs []likelihood.Record, opt SummaryOptions, pooled bool) Part {
+func (s *Summary) part(d *likelihood.Data, recs []likelihood.Record, opt SummaryOptions) Part {
 	k := len(d.Labels)
 	sub := &likelihood.Data{Labels: d.Labels, Records: recs}
 	p := Part{Records: len(recs), Counts: make([]int, k), Pairs: TransitionCounts(sub)}
@@ -181,59 +193,55 @@ func (s *Summary) part(d *likelihood.Data, recs []likelihood.Record, opt Summary
 	}
 	ao := AffinityOptions{Level: opt.Level, Bootstrap: opt.Bootstrap, Seed: opt.Seed}
 	p.Affinity = EffectiveAffinity(sub, plus, minus, ao)
-	np, nm := after[plus], after[minus]
-	act := float64(np+nm) / p.Duration
+	// J, activity and D: the long-time estimator shared with EntropyBounds
+	// (its sums, so that J is the same number to the last bit).
+	cf := newCurrentFit(recs, plus, minus, true)
+	j := cf.tot.c / cf.tot.dur
+	act := cf.tot.n / cf.tot.dur
+	d0 := cf.diffusion(&cf.tot)
+	var bj, bn, bd []float64
+	cf.bootstrap(opt.DiffusionBoot, opt.Seed, func(t *boundTotals) {
+		bj = append(bj, t.c/t.dur)
+		bn = append(bn, t.n/t.dur)
+		if dd := cf.diffusion(t); dd > 0 {
+			bd = append(bd, dd)
+		}
+	})
+	p.Diffusion = cf.diffusionEstimate(d0, bd, opt.Level)
+	p.Current = cf.currentEstimate(j, d0, bj, opt.Level)
+	p.Activity = cf.activityEstimate(bn, opt.Level)
+
+	// Fano factor at one stated window length.
 	p.Window = opt.WindowEvents / act
 	if math.IsInf(p.Window, 0) || math.IsNaN(p.Window) {
 		p.Window = math.NaN()
 	}
-	c, n := windowCounts(recs, plus, minus, p.Window)
+	c := windowCurrents(recs, plus, minus, p.Window)
 	p.Windows = len(c)
-	j := float64(np-nm) / p.Duration
 	if p.Windows >= 10 {
 		mc, vc := meanVar(c)
-		_, vn := meanVar(n)
 		m := float64(p.Windows)
-		dc := vc / (2 * p.Window)
 		// Var of a sample variance ~ 2 s^4/(m-1) (Gaussian windows).
 		relVar := math.Sqrt(2 / (m - 1))
-		p.Diffusion = Estimate{Value: dc, SE: dc * relVar, Method: fmt.Sprintf("variance over %d windows of length %.4g", p.Windows, p.Window)}
-		p.Diffusion.Lo, p.Diffusion.Hi = dc-z*p.Diffusion.SE, dc+z*p.Diffusion.SE
 		fano := vc / math.Abs(mc)
 		seMean := math.Sqrt(vc/m) / math.Abs(mc)
-		p.Fano = Estimate{Value: fano, SE: fano * math.Sqrt(relVar*relVar+seMean*seMean), Method: p.Diffusion.Method}
+		p.Fano = Estimate{Value: fano, SE: fano * math.Sqrt(relVar*relVar+seMean*seMean), Method: fmt.Sprintf("Var c(t)/|mean c(t)| over %d windows of t = %.4g (%g events on average)", p.Windows, p.Window, opt.WindowEvents)}
 		p.Fano.Lo, p.Fano.Hi = fano-z*p.Fano.SE, fano+z*p.Fano.SE
 		if mc == 0 || seMean > 0.5 {
 			p.Fano.Note = "the mean current per window is not resolved from zero: the Fano factor is not meaningful"
 		}
-		seJ := math.Sqrt(2 * dc / p.Duration)
-		p.Current = Estimate{Value: j, SE: seJ, Lo: j - z*seJ, Hi: j + z*seJ, Method: "window variance, SE = sqrt(2D/duration)"}
-		seA := math.Sqrt(vn / p.Window / p.Duration)
-		p.Activity = Estimate{Value: act, SE: seA, Lo: act - z*seA, Hi: act + z*seA, Method: "window variance, SE = sqrt(Var n(t)/t / duration)"}
 	} else {
-		note := fmt.Sprintf("only %d complete windows of %g events: fluctuations not estimated", p.Windows, opt.WindowEvents)
-		p.Diffusion = nanEstimate("", note)
-		p.Fano = nanEstimate("", note)
-		p.Current = poissonRate(np-nm, p.Duration, z)
-		p.Current.SE = math.Sqrt(float64(np+nm)) / p.Duration
-		p.Current.Lo, p.Current.Hi = j-z*p.Current.SE, j+z*p.Current.SE
-		p.Current.Note = "Poisson standard error (too few windows for the window estimate)"
-		p.Activity = poissonRate(np+nm, p.Duration, z)
+		p.Fano = nanEstimate("", fmt.Sprintf("only %d complete windows of %g events: Fano factor not estimated", p.Windows, opt.WindowEvents))
 	}
 	return p
 }
 
-// recordDuration is the observed span of r: from its first event to its
-// end, or to its last event when the end is unknown.
+// recordDuration is the observed span of r (time units): from its first
+// event to its end, or to its last event when the end is unknown (the
+// span fluctSpan gives, which the fluctuation statistics use too).
 func recordDuration(r *likelihood.Record) float64 {
-	if r.Len() == 0 {
-		return 0
-	}
-	end := r.Time[r.Len()-1]
-	if !math.IsNaN(r.End) {
-		end = r.End
-	}
-	return end - r.Time[0]
+	t0, t1 := fluctSpan(r)
+	return t1 - t0
 }
 
 // poissonRate is n/t with the Poisson standard error sqrt(n)/t.
@@ -246,49 +254,140 @@ func poissonRate(n int, t, z float64) Estimate {
 	return Estimate{Value: v, SE: se, Lo: v - z*se, Hi: v + z*se, Method: "Poisson"}
 }
 
-// windowCounts cuts each record's span (t_1, end] into complete windows
+// windowCurrents cuts each record's span (t_1, end] into complete windows
 // (t_1 + i w, t_1 + (i+1) w] and returns, per window, the current
-// c = n_+ - n_- and the activity n = n_+ + n_-.
-func windowCounts(recs []likelihood.Record, plus, minus uint8, w float64) (c, n []float64) {
+// c = n_+ - n_-.
+func windowCurrents(recs []likelihood.Record, plus, minus uint8, w float64) []float64 {
 	if !(w > 0) {
-		return nil, nil
+		return nil
 	}
+	var step [256]float64
+	step[plus], step[minus] = 1, -1
+	var c []float64
 	for i := range recs {
 		r := &recs[i]
-		span := recordDuration(r)
-		m := int(math.Floor(span / w))
+		m := int(math.Floor(recordDuration(r) / w))
 		if m <= 0 {
 			continue
 		}
 		t0 := r.Time[0]
-		cw := make([]float64, m)
-		nw := make([]float64, m)
-		for k := 1; k < r.Len(); k++ {
-			x := (r.Time[k] - t0) / w
-			idx := int(math.Ceil(x)) - 1
-			if idx < 0 {
-				continue // an event at t_1 itself
+		k := searchAfter(r.Time, 1, len(r.Time), t0) // events at t_1 itself are not in (t_1, ...]
+		for j := range m {
+			e := searchAfter(r.Time, k, len(r.Time), t0+float64(j+1)*w)
+			s := 0.0
+			for _, l := range r.Label[k:e] {
+				s += step[l]
 			}
-			if idx >= m {
-				break
-			}
-			switch r.Label[k] {
-			case plus:
-				cw[idx]++
-				nw[idx]++
-			case minus:
-				cw[idx]--
-				nw[idx]++
-			}
+			c = append(c, s)
+			k = e
 		}
-		c = append(c, cw...)
-		n = append(n, nw...)
 	}
-	return c, n
+	return c
 }
 
-// gapStats returns the inter-transition time statistics per pair.
+// gapStats returns the inter-transition time statistics per pair: count,
+// mean, median and CV = sqrt(unbiased variance)/mean, the same numbers as
+// meanVar and median of each PairGaps slice (gapStatsStored), without
+// storing every gap. Two passes over the events: the first counts and sums
+// the gaps and histograms the top 16 bits of their bit patterns (exponent
+// and 4 mantissa bits: buckets 1/16 of a binade wide, monotone in the value
+// for gaps >= 0); the second sums the squared deviations from the mean
+// (two-pass variance, as meanVar) and keeps only the gaps in the bucket(s)
+// holding the middle order statistics, among which the median is then
+// selected. Negative or NaN gaps (times out of order) and more than 8
+// labels fall back to gapStatsStored.
 func gapStats(recs []likelihood.Record, k int) [][]GapStats {
+	const shift = 48 // 64 bits - sign - 11 exponent bits - 4 mantissa bits
+	const buckets = 1 << (64 - shift - 1)
+	kk := k * k
+	if k == 0 || k > 8 {
+		return gapStatsStored(recs, k)
+	}
+	cnt := make([]int, kk)
+	sum := make([]float64, kk)
+	hist := make([]int32, kk*buckets)
+	for i := range recs {
+		r := &recs[i]
+		tm, lab := r.Time, r.Label[:len(r.Time)]
+		for j := 1; j < len(tm); j++ {
+			g := tm[j] - tm[j-1]
+			if !(g >= 0) {
+				return gapStatsStored(recs, k)
+			}
+			p := int(lab[j-1])*k + int(lab[j])
+			cnt[p]++
+			sum[p] += g
+			// g + 0 is +0 for g = -0 too, so zero has one bucket.
+			hist[p*buckets+int(math.Float64bits(g+0)>>shift)]++
+		}
+	}
+	mean := make([]float64, kk)
+	// The buckets bl..bh that hold the order statistics (n-1)/2 and n/2,
+	// and how many gaps lie below bucket bl.
+	bl, bh, below := make([]int, kk), make([]int, kk), make([]int, kk)
+	for p := range kk {
+		n := cnt[p]
+		mean[p] = math.NaN()
+		bl[p], bh[p] = buckets, -1
+		if n == 0 {
+			continue
+		}
+		mean[p] = sum[p] / float64(n)
+		acc := 0
+		for b, c := range hist[p*buckets : (p+1)*buckets] {
+			if bl[p] == buckets && acc+int(c) > (n-1)/2 {
+				bl[p], below[p] = b, acc
+			}
+			if acc+int(c) > n/2 {
+				bh[p] = b
+				break
+			}
+			acc += int(c)
+		}
+	}
+	ss := make([]float64, kk)
+	keep := make([][]float64, kk)
+	for i := range recs {
+		r := &recs[i]
+		tm, lab := r.Time, r.Label[:len(r.Time)]
+		for j := 1; j < len(tm); j++ {
+			g := tm[j] - tm[j-1]
+			p := int(lab[j-1])*k + int(lab[j])
+			d := g - mean[p]
+			ss[p] += d * d
+			if b := int(math.Float64bits(g+0) >> shift); b >= bl[p] && b <= bh[p] {
+				keep[p] = append(keep[p], g)
+			}
+		}
+	}
+	out := make([][]GapStats, k)
+	for a := 0; a < k; a++ {
+		out[a] = make([]GapStats, k)
+		for b := 0; b < k; b++ {
+			p := a*k + b
+			n := cnt[p]
+			gs := GapStats{N: n, Mean: mean[p], Median: math.NaN(), CV: math.NaN()}
+			if n > 0 {
+				x := keep[p]
+				m := selectK(x, n/2-below[p])
+				if n%2 == 0 {
+					// The lower middle: the largest kept value left of it.
+					l := (n/2 - 1) - below[p]
+					m = (selectK(x[:l+1], l) + m) / 2
+				}
+				gs.Median = m
+			}
+			if n > 1 {
+				gs.CV = math.Sqrt(ss[p]/float64(n-1)) / mean[p]
+			}
+			out[a][b] = gs
+		}
+	}
+	return out
+}
+
+// gapStatsStored is gapStats from the stored gaps of every pair.
+func gapStatsStored(recs []likelihood.Record, k int) [][]GapStats {
 	pairs := PairGaps(recs, k)
 	out := make([][]GapStats, k)
 	for a := 0; a < k; a++ {

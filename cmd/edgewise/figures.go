@@ -22,8 +22,9 @@ import (
 )
 
 // Figures are drawn for print: 10 pt text, thin lines, no grid, a colour
-// palette that stays distinct in grey scale (Okabe-Ito orange, blue,
-// bluish green, vermillion), PNG at 300 dots per inch.
+// palette chosen to stay distinct for colour-blind readers (Okabe-Ito
+// blue, vermillion, bluish green, orange, reddish purple), PNG at 300 dots
+// per inch. figPalette is read only.
 var figPalette = []color.Color{
 	color.RGBA{0, 114, 178, 255},   // blue
 	color.RGBA{213, 94, 0, 255},    // vermillion

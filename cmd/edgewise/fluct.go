@@ -1,8 +1,6 @@
 package main
 
 import (
-	"crypto/sha256"
-	"encoding/hex"
 	"fmt"
 	"io"
 	"math"
@@ -37,10 +35,15 @@ events, so their difference is judged by a block bootstrap (--boot, --seed):
 its z-score keeps their correlation.
 
 --bounds adds lower bounds on the entropy production rate: F*J, the
-thermodynamic uncertainty bound J^2/D (Var c(t) ~ 2 D t) and the
-transition-based waiting-time bound (its waiting-time part needs about 10^4
-gaps of each of ++ and --). They hold when each label sits on one directed
-edge; with --multi-edge they are not claimed.
+thermodynamic uncertainty bound J^2/D and the transition-based waiting-time
+bound (its waiting-time part needs about 10^4 gaps of each of ++ and --).
+D is half the long-time slope of Var c(t) = a + 2 D t, with a block
+bootstrap of --boot replicates: the estimator 'inspect' uses, so the two
+print the same D for the same file, seed and replicate count (inspect's
+--diffusion-boot). When a ++ or -- pair was never seen F is infinite and
+F*J is given as the one-sided bound the data support (F's Clopper-Pearson
+bound times J). The bounds hold when each label sits on one directed edge;
+with --multi-edge they are not claimed.
 
 Records: CSV or TSV with columns time, label and optionally record; "-"
 reads standard input. Times are in the unit of the rates.
@@ -110,7 +113,7 @@ func cmdFluct(args []string, stdout, stderr io.Writer) int {
 		}
 	}
 	path := fs.Arg(0)
-	d, rep, sum, err := readRecordsSummed(path, os.Stdin)
+	d, rep, sum, err := readInput(path, os.Stdin, infer.ReadOptions{})
 	if err != nil {
 		return fail(1, err)
 	}
@@ -152,31 +155,6 @@ func cmdFluct(args []string, stdout, stderr io.Writer) int {
 	return 0
 }
 
-// readRecordsSummed reads records from path ("-": stdin) through the infer
-// reader and returns the sha256 of the bytes read.
-func readRecordsSummed(path string, stdin io.Reader) (*likelihood.Data, *infer.ReadReport, string, error) {
-	var in io.Reader = stdin
-	name := "standard input"
-	if path != "-" {
-		f, err := os.Open(path)
-		if err != nil {
-			return nil, nil, "", err
-		}
-		defer f.Close()
-		in, name = f, path
-	}
-	h := sha256.New()
-	d, rep, err := infer.ReadRecords(io.TeeReader(in, h), name, infer.ReadOptions{})
-	if err != nil {
-		return nil, nil, "", err
-	}
-	// Hash what the reader left unread (a reader may stop at the last line).
-	if _, err := io.Copy(h, in); err != nil {
-		return nil, nil, "", err
-	}
-	return d, rep, hex.EncodeToString(h.Sum(nil)), nil
-}
-
 func parseInts(s string) ([]int, error) {
 	var out []int
 	for _, f := range strings.Split(s, ",") {
@@ -192,16 +170,14 @@ func parseInts(s string) ([]int, error) {
 	return out, nil
 }
 
+// fg formats a number like inspect's num (5 significant digits), so that
+// the same estimate prints the same in both commands, but "-" when
+// undefined.
 func fg(x float64) string {
-	switch {
-	case math.IsNaN(x):
+	if math.IsNaN(x) {
 		return "-"
-	case math.IsInf(x, 1):
-		return "inf"
-	case math.IsInf(x, -1):
-		return "-inf"
 	}
-	return strconv.FormatFloat(x, 'g', 4, 64)
+	return num(x)
 }
 
 func fint(e infer.Estimate) string {

@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"encoding/json"
 	"os"
+	"strconv"
 	"strings"
 	"testing"
 )
@@ -96,4 +97,49 @@ func TestFluctUsage(t *testing.T) {
 	if code := run([]string{"fluct", demo, "--labels", "a,b"}, &out, &errb); code != 1 || !strings.Contains(errb.String(), "not both in") {
 		t.Errorf("unknown labels: code %d: %s", code, errb.String())
 	}
+}
+
+// TestInspectFluctSameD: inspect and fluct --bounds use one estimator of
+// the current's diffusion coefficient, so on the same file with the same
+// seed and replicate count they print the same D, SE, interval and method
+// (and the same J). The value must also be a number, so that agreement
+// of two "n/a" rows cannot pass.
+func TestInspectFluctSameD(t *testing.T) {
+	find := func(rep report, prefix string) []string {
+		for _, tb := range rep.Tables {
+			for _, r := range tb.Rows {
+				if strings.HasPrefix(r[0], prefix) {
+					return r
+				}
+			}
+		}
+		t.Fatalf("no row %q", prefix)
+		return nil
+	}
+	var a, b, errb bytes.Buffer
+	if code := run([]string{"inspect", demo, "--seed", "3", "--bootstrap", "0", "--shape-resamples", "0", "--diffusion-boot", "150", "--format", "json"}, &a, &errb); code != 0 {
+		t.Fatalf("inspect: code %d: %s", code, errb.String())
+	}
+	if code := run([]string{"fluct", demo, "--n", "3", "--bounds", "--seed", "3", "--boot", "150", "--format", "json"}, &b, &errb); code != 0 {
+		t.Fatalf("fluct: code %d: %s", code, errb.String())
+	}
+	var ra, rb report
+	if err := json.Unmarshal(a.Bytes(), &ra); err != nil {
+		t.Fatal(err)
+	}
+	if err := json.Unmarshal(b.Bytes(), &rb); err != nil {
+		t.Fatal(err)
+	}
+	di, df := find(ra, "diffusion coefficient D"), find(rb, "diffusion coefficient D")
+	if strings.Join(di[1:5], "|") != strings.Join(df[1:5], "|") {
+		t.Errorf("D differs:\n inspect %q\n fluct   %q", di, df)
+	}
+	if _, err := strconv.ParseFloat(di[1], 64); err != nil || !strings.Contains(di[4], "150 replicates, seed 3") {
+		t.Errorf("D row %q: not a number or not the asked bootstrap", di)
+	}
+	ji, jf := find(ra, "current J"), find(rb, "visible current J")
+	if strings.Join(ji[1:5], "|") != strings.Join(jf[1:5], "|") {
+		t.Errorf("J differs:\n inspect %q\n fluct   %q", ji, jf)
+	}
+	t.Logf("D: %q", di[1:5])
 }

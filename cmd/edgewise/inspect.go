@@ -21,8 +21,12 @@ time and label, optional record; '#' lines are comments; a row labelled
 "end" gives a record's end time; "-" reads standard input):
 
   - counts and rates of each label, the visible current J = (n+ - n-)/time
-    and the activity, with the current's diffusion coefficient and Fano
-    factor estimated from windows of --window events on average;
+    and the activity, and the current's diffusion coefficient D, half the
+    long-time slope of Var c(t) = a + 2Dt (the same estimator, block
+    bootstrap and seed as 'fluct --bounds', so with --diffusion-boot equal
+    to fluct's --boot both print the same D and interval); also the Fano
+    factor Var c(t)/|mean c(t)| at one window length, --window events on
+    average (it includes the window's boundary offset a/(|J| t));
   - P(l'|l), the probability that an l event is followed by l', with exact
     (Clopper-Pearson) intervals;
   - the effective affinity F = ln[P(+|+)/P(-|-)] (k_BT), with a delta-method
@@ -54,7 +58,8 @@ func cmdInspect(args []string, stdout, stderr io.Writer) int {
 	minus := fs.String("minus", "-", "label of a backward crossing of the visible edge")
 	trace := fs.Bool("trace", false, "the file is a state trace (columns time, state)")
 	perRecord := fs.Bool("per-record", false, "also show each record on its own")
-	window := fs.Float64("window", 50, "mean events per window for the current's fluctuations")
+	window := fs.Float64("window", 50, "mean events per window of the Fano factor")
+	dboot := fs.Int("diffusion-boot", infer.DefaultDiffusionBoot, "block-bootstrap replicates for J, the activity and D (as fluct --boot)")
 	boot := fs.Int("bootstrap", 1000, "bootstrap resamples for F (0: delta method only)")
 	shapeBoot := fs.Int("shape-resamples", 199, "null resamples calibrating the shape test (0: none; skipped above 10^6 gaps)")
 	seed := fs.Uint64P("seed", "s", 1, "random seed of the bootstrap")
@@ -63,7 +68,7 @@ func cmdInspect(args []string, stdout, stderr io.Writer) int {
 	if code := parseFlags(fs, args); code >= 0 {
 		return code
 	}
-	if fs.NArg() != 1 || *boot < 0 || *shapeBoot < 0 || !(*window > 0) {
+	if fs.NArg() != 1 || *boot < 0 || *shapeBoot < 0 || *dboot < 0 || !(*window > 0) {
 		fs.Usage()
 		return 2
 	}
@@ -86,7 +91,7 @@ func cmdInspect(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "edgewise: %v\n", err)
 		return 1
 	}
-	r, err := inspectReport(d, rep, inspectConfig{plus: *plus, minus: *minus, perRecord: *perRecord, window: *window, boot: *boot, shapeBoot: *shapeBoot, seed: *seed})
+	r, err := inspectReport(d, rep, inspectConfig{plus: *plus, minus: *minus, perRecord: *perRecord, window: *window, boot: *boot, dboot: *dboot, shapeBoot: *shapeBoot, seed: *seed})
 	if err != nil {
 		fmt.Fprintf(stderr, "edgewise: %v\n", err)
 		return 1
@@ -115,7 +120,9 @@ func differ(significant bool) string {
 	return "no significant difference"
 }
 
-// readInput reads records from path ("-": stdin), hashing the bytes read.
+// readInput reads records from path ("-": stdin), hashing the bytes read;
+// for a file the size goes to the reader, which then sizes its event
+// slices once.
 func readInput(path string, stdin io.Reader, opt infer.ReadOptions) (*likelihood.Data, *infer.ReadReport, string, error) {
 	var src io.Reader
 	name := path
@@ -136,6 +143,11 @@ func readInput(path string, stdin io.Reader, opt infer.ReadOptions) (*likelihood
 	d, rep, err := infer.ReadRecords(io.TeeReader(src, h), name, opt)
 	if err != nil {
 		return nil, nil, "", err
+	}
+	// Hash whatever the reader left unread, so that the checksum is the
+	// input's whatever the reader does.
+	if _, err := io.Copy(h, src); err != nil {
+		return nil, nil, "", fmt.Errorf("%s: %w", name, err)
 	}
 	return d, rep, hex.EncodeToString(h.Sum(nil)), nil
 }
@@ -169,6 +181,7 @@ type inspectConfig struct {
 	perRecord   bool
 	window      float64
 	boot        int
+	dboot       int // block-bootstrap replicates of J, activity and D; 0: none
 	shapeBoot   int
 	seed        uint64
 }
@@ -206,7 +219,11 @@ func pval(p float64) string {
 
 // inspectReport builds the tables of inspect.
 func inspectReport(d *likelihood.Data, rep *infer.ReadReport, c inspectConfig) (*report, error) {
-	s, err := infer.Summarize(d, infer.SummaryOptions{Plus: c.plus, Minus: c.minus, WindowEvents: c.window, PerRecord: c.perRecord})
+	dboot := c.dboot
+	if dboot == 0 {
+		dboot = -1 // Summarize: negative means no bootstrap
+	}
+	s, err := infer.Summarize(d, infer.SummaryOptions{Plus: c.plus, Minus: c.minus, WindowEvents: c.window, PerRecord: c.perRecord, Seed: c.seed, DiffusionBoot: dboot})
 	if err != nil {
 		return nil, err
 	}
@@ -252,8 +269,8 @@ func inspectReport(d *likelihood.Data, rep *infer.ReadReport, c inspectConfig) (
 		pl, mi := c.plus, c.minus
 		row(fmt.Sprintf("current J = (n%s - n%s)/time", pl, mi), p.Current)
 		row(fmt.Sprintf("activity (n%s + n%s)/time", pl, mi), p.Activity)
-		row("diffusion D of the current (Var c ~ 2Dt)", p.Diffusion)
-		row("Fano factor Var c / |mean c| (randomness)", p.Fano)
+		row("diffusion coefficient D of c (1/time), long-time slope", p.Diffusion)
+		row(fmt.Sprintf("Fano factor Var c(t)/|mean c(t)| at t = %s (%g events)", num(p.Window), c.window), p.Fano)
 		row(fmt.Sprintf("F = ln[P(%s|%s)/P(%s|%s)] (k_BT)", pl, pl, mi, mi), p.Affinity)
 		if c.boot > 0 {
 			fBoot := infer.EffectiveAffinity(d, uint8(s.Plus), uint8(s.Minus), infer.AffinityOptions{Level: s.Level, Bootstrap: c.boot, Seed: c.seed})
