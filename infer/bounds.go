@@ -67,7 +67,12 @@ type Bounds struct {
 	// effective affinity (k_BT).
 	J, F Estimate
 	// FJ = F*J (k_B/time). sigma >= F J holds when each label sits on one
-	// directed edge, for any detection probability (design section 8).
+	// directed edge and the instrument treats both directions alike: the
+	// same detection probability for + and -, and no dead time. (With
+	// p_+ != p_- the labels coarse-grain a chain whose entropy production
+	// is sigma + J ln(p_+/p_-); a dead time is blind after an event and
+	// not before, which breaks time-reversal symmetry. Either can make an
+	// undriven system show F J > 0.)
 	// When the plug-in F is infinite (a ++ or -- pair never seen) FJ is
 	// the one-sided bound F_lo*J (Value +Inf, Lo the bound; see oneSidedFJ).
 	FJ Estimate
@@ -129,7 +134,9 @@ type VariancePoint struct {
 // F is large, since N-- ~ N e^-F) to be resolved to a few hundredths of
 // the pair rates; below 1000 of either kind it is reported with a warning.
 //
-// The bounds hold when each label sits on one directed edge. When
+// The bounds hold when each label sits on one directed edge and both
+// directions are detected alike (equal detection probabilities, no dead
+// time); the data cannot tell, so callers must say so. When
 // opt.MultiEdge is set they are not claimed: a label on several edges does
 // not say which transition happened, so the reverse of an event is not
 // known, c need not be a current of the network and the label sequence is

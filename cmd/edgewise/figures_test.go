@@ -17,7 +17,7 @@ func TestFluctFigures(t *testing.T) {
 	for ext, magic := range sig {
 		pl, hi, pn := filepath.Join(dir, "fluct"+ext), filepath.Join(dir, "gaps"+ext), filepath.Join(dir, "pn"+ext)
 		var out, errb bytes.Buffer
-		args := []string{"fluct", demo, "--n", "3,5", "--fixed-time", "--boot", "20", "--plot", pl, "--hist", hi, "--pn", pn}
+		args := []string{"fluct", demo, "--windows", "3,5", "--fixed-time", "--boot", "20", "--plot", pl, "--hist", hi, "--pn", pn}
 		if code := run(args, &out, &errb); code != 0 {
 			t.Fatalf("%s: code %d: %s", ext, code, errb.String())
 		}

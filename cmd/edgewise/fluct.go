@@ -39,23 +39,26 @@ thermodynamic uncertainty bound J^2/D and the transition-based waiting-time
 bound (its waiting-time part needs about 10^4 gaps of each of ++ and --).
 D is half the long-time slope of Var c(t) = a + 2 D t, with a block
 bootstrap of --boot replicates: the estimator 'inspect' uses, so the two
-print the same D for the same file, seed and replicate count (inspect's
---diffusion-boot). When a ++ or -- pair was never seen F is infinite and
+print the same D for the same file, --seed and --boot. When a ++ or -- pair was never seen F is infinite and
 F*J is given as the one-sided bound the data support (F's Clopper-Pearson
-bound times J). The bounds hold when each label sits on one directed edge;
-with --multi-edge they are not claimed.
+bound times J). The bounds hold when each label sits on one directed edge
+and the instrument treats both directions alike (equal detection
+probabilities, no dead time); with --multi-edge they are not claimed.
 
 Records: CSV or TSV with columns time, label and optionally record; "-"
-reads standard input. Times are in the unit of the rates.
+reads standard input. Times are in the unit of the rates. --rename and
+--trace read other labels and state traces as in 'inspect'.
 
 Example:
-  edgewise fluct testdata/ring3-demo.csv --n 3,5 --fixed-time --bounds \
+  edgewise fluct testdata/ring4-demo.csv --windows 5,20 --fixed-time --bounds \
       --plot fluct.svg --hist gaps.png --pn pn.pdf
 
-This ring has F = 4.4, so a window of n events rarely shows a negative
-current beyond n = 5 in these 20000 events (the test then says so); the
-fixed-time slope departs from F at such short windows even for a ring (a
-boundary effect that fades like 1/n), while the post-selected slope agrees.
+This weakly driven ring has F = 1.1, so windows of 5 and 20 events show
+both signs of the current often enough; the fixed-time slope departs from
+F at such short windows even for a ring (a boundary effect that fades like
+1/n), while the post-selected slope agrees. With a strong drive (F = 4.4 in
+testdata/ring3-demo.csv) negative currents are rare beyond n = 5, and the
+test says so.
 
 Cautions: the test assumes stationarity; a slope consistent with F does not
 prove a model; F*J and J^2/D are lower bounds, not estimates of sigma.
@@ -65,20 +68,21 @@ Options:
 
 func cmdFluct(args []string, stdout, stderr io.Writer) int {
 	fs := newFlags("fluct", fluctHelp, args, stdout, stderr)
-	nlist := fs.String("n", "5,20,100", "window lengths in events, comma separated")
+	nlist := fs.StringP("windows", "w", "5,20,100", "window lengths in events, comma separated")
 	post := fs.String("post-select", "both", "windows shown: only (post-selected) or both (all and post-selected)")
 	fixed := fs.Bool("fixed-time", false, "add windows of a fixed clock time as a contrast")
 	bounds := fs.Bool("bounds", false, "add entropy production lower bounds")
 	multi := fs.Bool("multi-edge", false, "a label may sit on several directed edges: do not claim bounds")
-	labels := fs.String("labels", "+,-", "forward and backward label of the visible edge")
-	level := fs.Float64("level", 0.95, "confidence level of intervals")
-	boot := fs.Int("boot", 200, "bootstrap replicates")
+	rf := addRecordFlags(fs)
+	level := rf.level
+	boot := fs.Int("boot", infer.DefaultDiffusionBoot, "bootstrap replicates")
 	seed := fs.Uint64P("seed", "s", 1, "bootstrap random seed")
 	plotPath := fs.String("plot", "", "write the fluctuation plot to this file (.png, .svg, .pdf)")
 	histPath := fs.String("hist", "", "write inter-transition time densities to this file")
 	pnPath := fs.String("pn", "", "write P_n(c) histograms to this file")
 	format := fs.StringP("format", "f", "table", "output format: "+formats)
-	force := fs.Bool("force", false, "overwrite existing figure files")
+	out := fs.StringP("output", "o", "-", "output file for the tables (- for standard output)")
+	force := fs.Bool("force", false, "overwrite existing output and figure files")
 	if code := parseFlags(fs, args); code >= 0 {
 		return code
 	}
@@ -92,14 +96,24 @@ func cmdFluct(args []string, stdout, stderr io.Writer) int {
 	}
 	ns, err := parseInts(*nlist)
 	if err != nil {
-		return fail(2, fmt.Errorf("--n: %w", err))
+		return fail(2, fmt.Errorf("--windows: %w", err))
 	}
 	if *post != "only" && *post != "both" {
 		return fail(2, fmt.Errorf("--post-select %q: want only or both", *post))
 	}
-	lab := strings.Split(*labels, ",")
-	if len(lab) != 2 || lab[0] == "" || lab[1] == "" {
-		return fail(2, fmt.Errorf("--labels %q: want two labels, e.g. +,-", *labels))
+	fwd, bwd, err := rf.edgeLabels()
+	if err != nil {
+		return fail(2, err)
+	}
+	if err := rf.checkLevel(); err != nil {
+		return fail(2, err)
+	}
+	ropt, err := rf.readOptions()
+	if err != nil {
+		return fail(2, err)
+	}
+	if err := checkOutput(*out, *force); err != nil {
+		return fail(1, err)
 	}
 	for _, p := range []string{*plotPath, *histPath, *pnPath} {
 		if p == "" {
@@ -113,11 +127,11 @@ func cmdFluct(args []string, stdout, stderr io.Writer) int {
 		}
 	}
 	path := fs.Arg(0)
-	d, rep, sum, err := readInput(path, os.Stdin, infer.ReadOptions{})
+	d, rep, sum, err := readInput(path, os.Stdin, ropt)
 	if err != nil {
 		return fail(1, err)
 	}
-	edge := infer.EdgeLabels{Forward: lab[0], Backward: lab[1]}
+	edge := infer.EdgeLabels{Forward: fwd, Backward: bwd}
 	res, err := infer.FluctuationTest(d, ns, infer.FluctOptions{Labels: edge, Level: *level, Boot: *boot, Seed: *seed, FixedTime: *fixed})
 	if err != nil {
 		return fail(1, err)
@@ -140,7 +154,8 @@ func cmdFluct(args []string, stdout, stderr io.Writer) int {
 			return fail(1, err)
 		}
 		r.Tables = append(r.Tables, boundTables(bres, *level)...)
-		r.Notes = append(r.Notes, "F*J, J^2/D and the transition-based sum are lower bounds on the entropy production rate, not estimates of it; a model whose sigma lies below them beyond error is inconsistent")
+		r.Notes = append(r.Notes, "F*J, J^2/D and the transition-based sum are lower bounds on the entropy production rate, not estimates of it; a model whose sigma lies below them beyond error is inconsistent",
+			"the bounds also need an instrument that treats both directions alike: equal detection probabilities of + and - and no dead time (either one alone can make an undriven system show F*J > 0)")
 		if !bres.Claimed {
 			r.Notes = append(r.Notes, "bounds "+bres.Reason)
 		}
@@ -149,8 +164,14 @@ func cmdFluct(args []string, stdout, stderr io.Writer) int {
 	if err := writeFluctFigures(d, res, *post == "both", *plotPath, *histPath, *pnPath, *force); err != nil {
 		return fail(1, err)
 	}
-	if err := r.write(stdout, *format); err != nil {
-		return fail(2, err)
+	gen := func(w io.Writer) error { return r.write(w, *format) }
+	if *out == "-" {
+		err = gen(stdout)
+	} else {
+		err = writeAtomic(*out, *force, gen)
+	}
+	if err != nil {
+		return fail(1, err)
 	}
 	return 0
 }

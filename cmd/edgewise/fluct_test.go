@@ -17,7 +17,7 @@ const demo = "../../testdata/ring3-demo.csv"
 func TestFluctCommand(t *testing.T) {
 	for _, f := range []string{"table", "markdown", "latex", "csv", "json"} {
 		var out, errb bytes.Buffer
-		code := run([]string{"fluct", demo, "--n", "3,5", "--fixed-time", "--bounds", "--boot", "50", "--format", f}, &out, &errb)
+		code := run([]string{"fluct", demo, "--windows", "3,5", "--fixed-time", "--bounds", "--boot", "50", "--format", f}, &out, &errb)
 		if code != 0 {
 			t.Fatalf("%s: code %d: %s", f, code, errb.String())
 		}
@@ -32,7 +32,7 @@ func TestFluctCommand(t *testing.T) {
 		}
 	}
 	var out, errb bytes.Buffer
-	if code := run([]string{"fluct", demo, "--n", "3", "--post-select", "only", "--format", "json", "--boot", "50"}, &out, &errb); code != 0 {
+	if code := run([]string{"fluct", demo, "--windows", "3", "--post-select", "only", "--format", "json", "--boot", "50"}, &out, &errb); code != 0 {
 		t.Fatalf("code %d: %s", code, errb.String())
 	}
 	var rep report
@@ -60,10 +60,10 @@ func TestFluctStdin(t *testing.T) {
 	os.Stdin = f
 	defer func() { os.Stdin = old }()
 	var a, b, errb bytes.Buffer
-	if code := run([]string{"fluct", "-", "--n", "3", "--format", "json"}, &a, &errb); code != 0 {
+	if code := run([]string{"fluct", "-", "--windows", "3", "--format", "json"}, &a, &errb); code != 0 {
 		t.Fatalf("stdin: code %d: %s", code, errb.String())
 	}
-	if code := run([]string{"fluct", demo, "--n", "3", "--format", "json"}, &b, &errb); code != 0 {
+	if code := run([]string{"fluct", demo, "--windows", "3", "--format", "json"}, &b, &errb); code != 0 {
 		t.Fatalf("file: code %d: %s", code, errb.String())
 	}
 	var ra, rb report
@@ -80,10 +80,10 @@ func TestFluctUsage(t *testing.T) {
 		t.Errorf("help: code %d", code)
 	}
 	for _, args := range [][]string{
-		{"fluct", demo, "--n", "0"},
-		{"fluct", demo, "--n", "a"},
+		{"fluct", demo, "--windows", "0"},
+		{"fluct", demo, "--windows", "a"},
 		{"fluct", demo, "--post-select", "some"},
-		{"fluct", demo, "--labels", "+"},
+		{"fluct", demo, "--edge", "+"},
 		{"fluct", demo, "--plot", "x.gif"},
 		{"fluct"},
 	} {
@@ -94,7 +94,7 @@ func TestFluctUsage(t *testing.T) {
 	if code := run([]string{"fluct", "missing.csv"}, &out, &errb); code != 1 {
 		t.Errorf("missing file: code %d, want 1", code)
 	}
-	if code := run([]string{"fluct", demo, "--labels", "a,b"}, &out, &errb); code != 1 || !strings.Contains(errb.String(), "not both in") {
+	if code := run([]string{"fluct", demo, "--edge", "a,b"}, &out, &errb); code != 1 || !strings.Contains(errb.String(), "not both in") {
 		t.Errorf("unknown labels: code %d: %s", code, errb.String())
 	}
 }
@@ -117,10 +117,10 @@ func TestInspectFluctSameD(t *testing.T) {
 		return nil
 	}
 	var a, b, errb bytes.Buffer
-	if code := run([]string{"inspect", demo, "--seed", "3", "--bootstrap", "0", "--shape-resamples", "0", "--diffusion-boot", "150", "--format", "json"}, &a, &errb); code != 0 {
+	if code := run([]string{"inspect", demo, "--seed", "3", "--boot", "150", "--shape-resamples", "0", "--format", "json"}, &a, &errb); code != 0 {
 		t.Fatalf("inspect: code %d: %s", code, errb.String())
 	}
-	if code := run([]string{"fluct", demo, "--n", "3", "--bounds", "--seed", "3", "--boot", "150", "--format", "json"}, &b, &errb); code != 0 {
+	if code := run([]string{"fluct", demo, "--windows", "3", "--bounds", "--seed", "3", "--boot", "150", "--format", "json"}, &b, &errb); code != 0 {
 		t.Fatalf("fluct: code %d: %s", code, errb.String())
 	}
 	var ra, rb report

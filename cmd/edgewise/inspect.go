@@ -23,8 +23,8 @@ time and label, optional record; '#' lines are comments; a row labelled
   - counts and rates of each label, the visible current J = (n+ - n-)/time
     and the activity, and the current's diffusion coefficient D, half the
     long-time slope of Var c(t) = a + 2Dt (the same estimator, block
-    bootstrap and seed as 'fluct --bounds', so with --diffusion-boot equal
-    to fluct's --boot both print the same D and interval); also the Fano
+    bootstrap and seed as 'fluct --bounds', so with the same --boot and
+    --seed both print the same D and interval); also the Fano
     factor Var c(t)/|mean c(t)| at one window length, --window events on
     average (it includes the window's boundary offset a/(|J| t));
   - P(l'|l), the probability that an l event is followed by l', with exact
@@ -40,12 +40,12 @@ time and label, optional record; '#' lines are comments; a row labelled
     labels, and drift within and between records.
 
 For a state trace (columns time and state) use --trace: each change of
-state X -> Y becomes an event labelled "X>Y" (rename with --labels).
+state X -> Y becomes an event labelled "X>Y" (rename with --rename).
 
 Example:
   edgewise inspect testdata/ring3-demo.csv --per-record --seed 1
   edgewise simulate testdata/ring3.toml -n 2000 | edgewise inspect - --format markdown
-  edgewise inspect trace.csv --trace --labels 'open>closed=-,closed>open=+'
+  edgewise inspect trace.csv --trace --rename 'open>closed=-,closed>open=+'
 
 Options:
 `
@@ -53,14 +53,10 @@ Options:
 func cmdInspect(args []string, stdout, stderr io.Writer) int {
 	fs := newFlags("inspect", inspectHelp, args, stdout, stderr)
 	format := fs.StringP("format", "f", "table", "output format: "+formats)
-	labels := fs.String("labels", "", "rename file labels, e.g. fwd=+,bwd=- (then every label must be one of the new names)")
-	plus := fs.String("plus", "+", "label of a forward crossing of the visible edge")
-	minus := fs.String("minus", "-", "label of a backward crossing of the visible edge")
-	trace := fs.Bool("trace", false, "the file is a state trace (columns time, state)")
+	rf := addRecordFlags(fs)
 	perRecord := fs.Bool("per-record", false, "also show each record on its own")
 	window := fs.Float64("window", 50, "mean events per window of the Fano factor")
-	dboot := fs.Int("diffusion-boot", infer.DefaultDiffusionBoot, "block-bootstrap replicates for J, the activity and D (as fluct --boot)")
-	boot := fs.Int("bootstrap", 1000, "bootstrap resamples for F (0: delta method only)")
+	boot := fs.Int("boot", infer.DefaultDiffusionBoot, "bootstrap replicates, for F, J, the activity and D (0: delta method only)")
 	shapeBoot := fs.Int("shape-resamples", 199, "null resamples calibrating the shape test (0: none; skipped above 10^6 gaps)")
 	seed := fs.Uint64P("seed", "s", 1, "random seed of the bootstrap")
 	out := fs.StringP("output", "o", "-", "output file (- for standard output)")
@@ -68,22 +64,31 @@ func cmdInspect(args []string, stdout, stderr io.Writer) int {
 	if code := parseFlags(fs, args); code >= 0 {
 		return code
 	}
-	if fs.NArg() != 1 || *boot < 0 || *shapeBoot < 0 || *dboot < 0 || !(*window > 0) {
+	if fs.NArg() != 1 {
 		fs.Usage()
 		return 2
+	}
+	if *boot < 0 || *shapeBoot < 0 || !(*window > 0) {
+		return usageError(stderr, "inspect", "--boot and --shape-resamples must be >= 0 and --window > 0")
+	}
+	if err := rf.checkLevel(); err != nil {
+		return usageError(stderr, "inspect", "%v", err)
+	}
+	plus, minus, err := rf.edgeLabels()
+	if err != nil {
+		return usageError(stderr, "inspect", "%v", err)
 	}
 	if !validFormat(*format) {
 		fmt.Fprintf(stderr, "edgewise: unknown format %q (want %s)\n", *format, formats)
 		return 2
 	}
-	opt := infer.ReadOptions{Trace: *trace}
-	if *labels != "" {
-		m, known, err := parseLabelMap(*labels)
-		if err != nil {
-			fmt.Fprintf(stderr, "edgewise: --labels: %v\n", err)
-			return 2
-		}
-		opt.Labels, opt.Known = m, known
+	opt, err := rf.readOptions()
+	if err != nil {
+		return usageError(stderr, "inspect", "%v", err)
+	}
+	if err := checkOutput(*out, *force); err != nil {
+		fmt.Fprintf(stderr, "edgewise: %v\n", err)
+		return 1
 	}
 	path := fs.Arg(0)
 	d, rep, sum, err := readInput(path, os.Stdin, opt)
@@ -91,12 +96,14 @@ func cmdInspect(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "edgewise: %v\n", err)
 		return 1
 	}
-	r, err := inspectReport(d, rep, inspectConfig{plus: *plus, minus: *minus, perRecord: *perRecord, window: *window, boot: *boot, dboot: *dboot, shapeBoot: *shapeBoot, seed: *seed})
+	r, err := inspectReport(d, rep, inspectConfig{plus: plus, minus: minus, level: *rf.level, perRecord: *perRecord, window: *window, boot: *boot, dboot: *boot, shapeBoot: *shapeBoot, seed: *seed})
 	if err != nil {
 		fmt.Fprintf(stderr, "edgewise: %v\n", err)
 		return 1
 	}
 	r.Input, r.Checksum = path, sum
+	r.Command = "inspect " + strings.Join(args, " ")
+	r.Seed = strconv.FormatUint(*seed, 10)
 	if path == "-" {
 		r.Input = "stdin"
 	}
@@ -178,6 +185,7 @@ func parseLabelMap(s string) (map[string]string, []string, error) {
 
 type inspectConfig struct {
 	plus, minus string
+	level       float64
 	perRecord   bool
 	window      float64
 	boot        int
@@ -223,7 +231,7 @@ func inspectReport(d *likelihood.Data, rep *infer.ReadReport, c inspectConfig) (
 	if dboot == 0 {
 		dboot = -1 // Summarize: negative means no bootstrap
 	}
-	s, err := infer.Summarize(d, infer.SummaryOptions{Plus: c.plus, Minus: c.minus, WindowEvents: c.window, PerRecord: c.perRecord, Seed: c.seed, DiffusionBoot: dboot})
+	s, err := infer.Summarize(d, infer.SummaryOptions{Plus: c.plus, Minus: c.minus, Level: c.level, WindowEvents: c.window, PerRecord: c.perRecord, Seed: c.seed, DiffusionBoot: dboot})
 	if err != nil {
 		return nil, err
 	}

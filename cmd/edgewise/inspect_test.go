@@ -20,7 +20,7 @@ func TestInspectDemo(t *testing.T) {
 	sum := checksum(src)[:12]
 	for _, f := range []string{"table", "markdown", "latex", "csv", "json"} {
 		var out, errb bytes.Buffer
-		if code := run([]string{"inspect", "../../testdata/ring3-demo.csv", "--per-record", "--bootstrap", "200", "--seed", "7", "--format", f}, &out, &errb); code != 0 {
+		if code := run([]string{"inspect", "../../testdata/ring3-demo.csv", "--per-record", "--boot", "200", "--seed", "7", "--format", f}, &out, &errb); code != 0 {
 			t.Fatalf("%s: code %d: %s", f, code, errb.String())
 		}
 		o := out.String()
@@ -73,7 +73,7 @@ func TestInspectStdinAndErrors(t *testing.T) {
 	os.Stdin = in
 	defer func() { os.Stdin = old }()
 	var out, errb bytes.Buffer
-	if code := run([]string{"inspect", "-", "--labels", "fwd=+,bwd=-", "--format", "csv"}, &out, &errb); code != 0 {
+	if code := run([]string{"inspect", "-", "--rename", "fwd=+,bwd=-", "--format", "csv"}, &out, &errb); code != 0 {
 		t.Fatalf("stdin: code %d: %s", code, errb.String())
 	}
 	if !strings.Contains(out.String(), "input stdin") || !strings.Contains(out.String(), "\n+,4,") {
@@ -86,10 +86,10 @@ func TestInspectStdinAndErrors(t *testing.T) {
 	if code := run([]string{"inspect", bad}, &out, &errb); code != 1 || !strings.Contains(errb.String(), "bad.csv:3:1: time:") {
 		t.Errorf("bad file: code %d, stderr %q", code, errb.String())
 	}
-	if code := run([]string{"inspect", good, "--labels", "fwd=+"}, &out, &errb); code != 1 || !strings.Contains(errb.String(), `unknown label "bwd"`) {
+	if code := run([]string{"inspect", good, "--rename", "fwd=+"}, &out, &errb); code != 1 || !strings.Contains(errb.String(), `unknown label "bwd"`) {
 		t.Errorf("unknown label: code %d, stderr %q", code, errb.String())
 	}
-	if code := run([]string{"inspect", good, "--labels", "fwd"}, &out, &errb); code != 2 {
+	if code := run([]string{"inspect", good, "--rename", "fwd"}, &out, &errb); code != 2 {
 		t.Errorf("bad --labels: code %d", code)
 	}
 	if code := run([]string{"inspect", good, "--format", "nope"}, &out, &errb); code != 2 {
@@ -100,11 +100,11 @@ func TestInspectStdinAndErrors(t *testing.T) {
 	}
 	o := filepath.Join(dir, "o.md")
 	for i, want := range []int{0, 1} {
-		if code := run([]string{"inspect", good, "--labels", "fwd=+,bwd=-", "-o", o, "--format", "markdown"}, &out, &errb); code != want {
+		if code := run([]string{"inspect", good, "--rename", "fwd=+,bwd=-", "-o", o, "--format", "markdown"}, &out, &errb); code != want {
 			t.Errorf("write %d: code %d, want %d", i, code, want)
 		}
 	}
-	if code := run([]string{"inspect", good, "--labels", "fwd=+,bwd=-", "-o", o, "--force"}, &out, &errb); code != 0 {
+	if code := run([]string{"inspect", good, "--rename", "fwd=+,bwd=-", "-o", o, "--force"}, &out, &errb); code != 0 {
 		t.Errorf("--force: code %d", code)
 	}
 }
@@ -131,7 +131,7 @@ func TestSimulateInspectRoundTrip(t *testing.T) {
 // state, of which 13 are A>B.
 func TestInspectTrace(t *testing.T) {
 	var out, errb bytes.Buffer
-	if code := run([]string{"inspect", "../../testdata/infer/ring3-trace.csv", "--plus", "A>B", "--minus", "B>A", "--format", "csv"}, &out, &errb); code != 0 {
+	if code := run([]string{"inspect", "../../testdata/infer/ring3-trace.csv", "--edge", "A>B,B>A", "--format", "csv"}, &out, &errb); code != 0 {
 		t.Fatalf("code %d: %s", code, errb.String())
 	}
 	for _, want := range []string{"events,58\n", "file kind,state trace\n", "A>B,13,", "neither a ++ pair"} {

@@ -34,7 +34,7 @@ and J the data's estimate with its 95% interval and the z-score of the
 model's value. A model consistent with the data is not thereby true.
 
 Example:
-  edgewise predict testdata/ring3.toml --data testdata/ring3-demo.csv --n 5,20
+  edgewise predict testdata/ring4.toml --data testdata/ring4-demo.csv --windows 5,20
 
 Options:
 `
@@ -45,8 +45,8 @@ func cmdPredict(args []string, stdout, stderr io.Writer) int {
 	data := fs.StringP("data", "d", "", "records to set against the model (CSV or TSV; - for standard input)")
 	dead := fs.Float64("dead-time", 0, "instrument dead time after each recorded event (time units)")
 	frame := fs.Float64("frame", 0, "frame length of the records' timestamps, for the log-likelihood (time units; 0 = exact times)")
-	ns := fs.String("n", "5,20,100", "window lengths of the count-stopped law, comma separated")
-	labels := fs.String("labels", "", "forward and backward label of the visible edge, e.g. +,- (default: + and - when the model has them)")
+	ns := fs.StringP("windows", "w", "5,20,100", "window lengths of the count-stopped law, comma separated")
+	rf := addRecordFlags(fs)
 	out := fs.StringP("output", "o", "-", "output file (- for standard output)")
 	force := fs.Bool("force", false, "overwrite an existing output file")
 	if code := parseFlags(fs, args); code >= 0 {
@@ -62,11 +62,11 @@ func cmdPredict(args []string, stdout, stderr io.Writer) int {
 	}
 	windows, err := parseInts(*ns)
 	if err != nil {
-		return usageError(stderr, "predict", "--n: %v", err)
+		return usageError(stderr, "predict", "--windows: %v", err)
 	}
 	for _, n := range windows {
 		if n < 2 || n > maxWindow {
-			return usageError(stderr, "predict", "--n: window length %d: want 2 to %d events (the exact law costs n^2 operations)", n, maxWindow)
+			return usageError(stderr, "predict", "--windows: window length %d: want 2 to %d events (the exact law costs n^2 operations)", n, maxWindow)
 		}
 	}
 	if err := checkOutput(*out, *force); err != nil {
@@ -93,24 +93,38 @@ func cmdPredict(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "edgewise: %v\n", err)
 		return 1
 	}
-	plus, minus, err := visibleEdge(pred, k.Labels, *labels)
-	if err != nil {
-		return usageError(stderr, "predict", "--labels: %v", err)
+	if err := rf.checkLevel(); err != nil {
+		return usageError(stderr, "predict", "%v", err)
 	}
+	edge := *rf.edge
+	if !fs.Changed("edge") {
+		edge = "" // the default "+,-" when the model has it, else any reversed pair
+	}
+	plus, minus, err := visibleEdge(pred, k.Labels, edge)
+	if err != nil {
+		return usageError(stderr, "predict", "--edge: %v", err)
+	}
+	ropt, err := rf.readOptions()
+	if err != nil {
+		return usageError(stderr, "predict", "%v", err)
+	}
+	// Data labels (after --rename) must be the model's, in the model's
+	// order, so that label indices agree between data and model.
+	ropt.Known = k.Labels
 	r := &report{Tool: "edgewise " + version, Command: "predict " + strings.Join(args, " "), Input: path, Checksum: checksum(src)}
 	if err := predictTables(r, m, net, k, pred, in, plus, minus, windows); err != nil {
 		fmt.Fprintf(stderr, "edgewise: %v\n", err)
 		return 1
 	}
 	if *data != "" {
-		d, _, sum, err := readInput(*data, os.Stdin, infer.ReadOptions{Known: k.Labels})
+		d, _, sum, err := readInput(*data, os.Stdin, ropt)
 		if err != nil {
 			fmt.Fprintf(stderr, "edgewise: %v\n", err)
 			return 1
 		}
 		r.Input += ", " + *data
 		r.Checksum += " " + sum
-		if err := againstData(r, net, pred, d, in, plus, minus); err != nil {
+		if err := againstData(r, net, pred, d, in, plus, minus, *rf.level); err != nil {
 			fmt.Fprintf(stderr, "edgewise: %v\n", err)
 			return 1
 		}
@@ -272,7 +286,7 @@ func originSlope(d likelihood.CountDist) float64 {
 }
 
 // againstData sets the records against the model's predictions.
-func againstData(r *report, net *models.Network, p *likelihood.Predictor, d *likelihood.Data, in likelihood.Instrument, plus, minus int) error {
+func againstData(r *report, net *models.Network, p *likelihood.Predictor, d *likelihood.Data, in likelihood.Instrument, plus, minus int, level float64) error {
 	g := func(x float64) string { return num(x + 0) } // + 0 turns -0 into 0
 	ll, err := likelihood.LogLik(net, d, likelihood.Options{Instrument: in})
 	if err != nil {
@@ -289,7 +303,7 @@ func againstData(r *report, net *models.Network, p *likelihood.Predictor, d *lik
 	if plus < 0 {
 		return nil
 	}
-	ct := table{Title: "Model against data (z = (data - model)/SE of the data)", Columns: []string{"quantity", "model", "data", "95% interval", "z"}}
+	ct := table{Title: "Model against data (z = (data - model)/SE of the data)", Columns: []string{"quantity", "model", "data", fmt.Sprintf("%g%% interval", 100*level), "z"}}
 	P := p.Transition()
 	counts := infer.TransitionCounts(d)
 	row := func(name string, model float64, e infer.Estimate) {
@@ -302,12 +316,12 @@ func againstData(r *report, net *models.Network, p *likelihood.Predictor, d *lik
 			tot += c
 		}
 		k := counts[l][l]
-		lo, hi := infer.ClopperPearson(k, tot, 0.95)
+		lo, hi := infer.ClopperPearson(k, tot, level)
 		ph := float64(k) / float64(tot)
 		row(fmt.Sprintf("P(%s|%s)", d.Labels[l], d.Labels[l]), P[l][l], infer.Estimate{Value: ph, SE: math.Sqrt(ph * (1 - ph) / float64(tot)), Lo: lo, Hi: hi})
 	}
-	row("effective affinity F (k_BT)", p.EffectiveAffinity(plus, minus), infer.EffectiveAffinity(d, uint8(plus), uint8(minus)))
-	sum, err := infer.Summarize(d, infer.SummaryOptions{Plus: d.Labels[plus], Minus: d.Labels[minus]})
+	row("effective affinity F (k_BT)", p.EffectiveAffinity(plus, minus), infer.EffectiveAffinity(d, uint8(plus), uint8(minus), infer.AffinityOptions{Level: level}))
+	sum, err := infer.Summarize(d, infer.SummaryOptions{Plus: d.Labels[plus], Minus: d.Labels[minus], Level: level})
 	if err != nil {
 		return err
 	}

@@ -53,7 +53,7 @@ func cell(t *testing.T, r report, title, key string, col int) float64 {
 // count-stopped slope is F for every n, and the raw slope is not. The
 // printed values have 5 significant digits, hence the tolerances.
 func TestPredictRing3(t *testing.T) {
-	r := predictJSON(t, "../../testdata/ring3.toml", "--n", "5,20")
+	r := predictJSON(t, "../../testdata/ring3.toml", "--windows", "5,20")
 	A := math.Log(3.0 * 2 * 1.5 / (0.5 * 0.4 * 0.6))
 	F := cell(t, r, "Predicted rates", "effective affinity", 1)
 	if math.Abs(F-A) > 1e-4 {
@@ -77,7 +77,7 @@ func TestPredictRing3(t *testing.T) {
 // every z-score is small (|z| < 4), and a dead time or missed events lower
 // the predicted F below the cycle affinity (design notes, section 7).
 func TestPredictAgainstData(t *testing.T) {
-	r := predictJSON(t, "../../testdata/ring3.toml", "--data", "../../testdata/ring3-demo.csv", "--n", "5")
+	r := predictJSON(t, "../../testdata/ring3.toml", "--data", "../../testdata/ring3-demo.csv", "--windows", "5")
 	for _, key := range []string{"P(+|+)", "P(-|-)", "effective affinity", "current J"} {
 		if z := cell(t, r, "Model against data", key, 4); math.Abs(z) > 4 {
 			t.Errorf("%s: z = %g", key, z)
@@ -90,7 +90,7 @@ func TestPredictAgainstData(t *testing.T) {
 		t.Errorf("stamp should carry both inputs' checksums: %q", r.Checksum)
 	}
 	A := math.Log(3.0 * 2 * 1.5 / (0.5 * 0.4 * 0.6))
-	dead := predictJSON(t, "../../testdata/ring3.toml", "--dead-time", "0.02", "--n", "5")
+	dead := predictJSON(t, "../../testdata/ring3.toml", "--dead-time", "0.02", "--windows", "5")
 	if F := cell(t, dead, "Predicted rates", "effective affinity", 1); !(F < A-0.01) {
 		t.Errorf("dead time: F = %g, want below %g", F, A)
 	}
@@ -107,7 +107,7 @@ func TestPredictErrors(t *testing.T) {
 		t.Errorf("unknown label: code %d, %s", code, errb.String())
 	}
 	errb.Reset()
-	if code := run([]string{"predict", "../../testdata/ring3.toml", "--labels", "+,nope"}, &out, &errb); code != 2 {
+	if code := run([]string{"predict", "../../testdata/ring3.toml", "--edge", "+,nope"}, &out, &errb); code != 2 {
 		t.Errorf("bad --labels: code %d", code)
 	}
 	o := filepath.Join(dir, "p.txt")
@@ -137,7 +137,7 @@ func TestPredictBoundsOnlyWhenValid(t *testing.T) {
 	uneq := filepath.Join(dir, "uneq.toml")
 	os.WriteFile(uneq, append(src, []byte("\n[label.out]\ndetect = 0.5\n")...), 0o644)
 	for _, args := range [][]string{{uneq}, {"../../testdata/balanced.toml", "--dead-time", "0.3"}} {
-		r := predictJSON(t, append(args, "--n", "5")...)
+		r := predictJSON(t, append(args, "--windows", "5")...)
 		F := cell(t, r, "Predicted rates", "effective affinity", 1)
 		if sigma := cell(t, r, "Predicted rates", "entropy production", 1); sigma != 0 || math.Abs(F) < 1e-3 {
 			t.Fatalf("%v: want sigma = 0 and F != 0 for this test to mean something; sigma %g F %g", args, sigma, F)
@@ -158,7 +158,7 @@ func TestPredictBoundsOnlyWhenValid(t *testing.T) {
 		}
 	}
 	// Equal detection keeps the bound, and the stamp records the options.
-	r := predictJSON(t, "../../testdata/ring3.toml", "--n", "5", "--dead-time", "0")
+	r := predictJSON(t, "../../testdata/ring3.toml", "--windows", "5", "--dead-time", "0")
 	if _, ok := findRow(r, "lower bound F*J"); !ok {
 		t.Error("bound missing for a valid instrument")
 	}
@@ -191,9 +191,9 @@ func TestUsageErrorsSayWhy(t *testing.T) {
 		{[]string{"describe", "../../testdata/ring3.toml", "--bogus"}, "edgewise describe: unknown flag: --bogus"},
 		{[]string{"simulate", "../../testdata/ring3.toml", "--events", "abc"}, "edgewise simulate: invalid argument"},
 		{[]string{"simulate", "../../testdata/ring3.toml", "--events", "0"}, "--events and --records must be at least 1"},
-		{[]string{"predict", "../../testdata/ring3.toml", "--n", "100000"}, "want 2 to 2000 events"},
+		{[]string{"predict", "../../testdata/ring3.toml", "--windows", "100000"}, "want 2 to 2000 events"},
 		{[]string{"predict", "../../testdata/ring3.toml", "--dead-time", "-1"}, "dead time -1"},
-		{[]string{"predict", nonrev, "--labels", "+,-"}, "do not sit on reversed transitions"},
+		{[]string{"predict", nonrev, "--edge", "+,-"}, "do not sit on reversed transitions"},
 	}
 	for _, c := range cases {
 		var out, errb bytes.Buffer
@@ -218,7 +218,7 @@ func TestPredictFrames(t *testing.T) {
 	if code := run([]string{"simulate", "../../testdata/ring3.toml", "-n", "2000", "--frame", "0.5", "-o", fr}, &out, &errb); code != 0 {
 		t.Fatal(errb.String())
 	}
-	r := predictJSON(t, "../../testdata/ring3.toml", "--data", fr, "--frame", "0.5", "--n", "5")
+	r := predictJSON(t, "../../testdata/ring3.toml", "--data", fr, "--frame", "0.5", "--windows", "5")
 	if ll := cell(t, r, "Log-likelihood", "ln L per gap", 1); !(ll < 0) {
 		t.Errorf("framed ln L per gap %g: a probability per gap must be below 1", ll)
 	}
