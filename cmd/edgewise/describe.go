@@ -4,7 +4,6 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"strconv"
 	"strings"
 
 	"edgewise/models"
@@ -51,7 +50,7 @@ func cmdDescribe(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "edgewise: %v\n", err)
 		return 1
 	}
-	g := func(x float64) string { return strconv.FormatFloat(x, 'g', 6, 64) }
+	g := num
 	r := &report{Tool: "edgewise " + version, Command: "describe", Input: path, Checksum: checksum(src)}
 	st := table{Title: "Stationary law", Columns: []string{"state", "probability"}}
 	for i, s := range net.States {
@@ -101,7 +100,7 @@ func cmdDescribe(args []string, stdout, stderr io.Writer) int {
 
 // modelTables shows a model's parameters, labels and affinity constraints.
 func modelTables(m *models.Model) []table {
-	g := func(x float64) string { return strconv.FormatFloat(x, 'g', 6, 64) }
+	g := num
 	pt := table{Title: "Parameters (rates in 1/time, detection probabilities without unit)", Columns: []string{"name", "kind", "value", "status", "lower", "upper"}}
 	for _, p := range m.Params {
 		kind, status := "rate", "free"

@@ -194,16 +194,11 @@ func parseInts(s string) ([]int, error) {
 // fg formats a number like inspect's num (5 significant digits), so that
 // the same estimate prints the same in both commands, but "-" when
 // undefined.
-func fg(x float64) string {
-	if math.IsNaN(x) {
-		return "-"
-	}
-	return num(x)
-}
+func fg(x float64) string { return num(x) }
 
 func fint(e infer.Estimate) string {
 	if math.IsNaN(e.Lo) && math.IsNaN(e.Hi) {
-		return "-"
+		return "n/a"
 	}
 	return "[" + fg(e.Lo) + ", " + fg(e.Hi) + "]"
 }

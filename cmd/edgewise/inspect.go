@@ -194,20 +194,6 @@ type inspectConfig struct {
 	seed        uint64
 }
 
-// num formats a number for tables: 5 significant digits, "+inf", "-inf",
-// and "n/a" for an undefined value.
-func num(x float64) string {
-	switch {
-	case math.IsNaN(x):
-		return "n/a"
-	case math.IsInf(x, 1):
-		return "+inf"
-	case math.IsInf(x, -1):
-		return "-inf"
-	}
-	return strconv.FormatFloat(x, 'g', 5, 64)
-}
-
 func interval(e infer.Estimate) string {
 	if math.IsNaN(e.Lo) && math.IsNaN(e.Hi) {
 		return "n/a"

@@ -183,7 +183,7 @@ func visibleEdge(p *likelihood.Predictor, names []string, spec string) (int, int
 }
 
 func predictTables(r *report, m *models.Model, net *models.Network, k *likelihood.Kernels, p *likelihood.Predictor, in likelihood.Instrument, plus, minus int, windows []int) error {
-	g := func(x float64) string { return num(x + 0) } // + 0 turns -0 into 0
+	g := num
 	names := k.Labels
 	P := p.Transition()
 	chain := table{Title: "Predicted next label and gap (time between consecutive events)", Columns: []string{"last", "next", "P(next|last)", "mean gap", "CV of gap"}}
@@ -287,7 +287,7 @@ func originSlope(d likelihood.CountDist) float64 {
 
 // againstData sets the records against the model's predictions.
 func againstData(r *report, net *models.Network, p *likelihood.Predictor, d *likelihood.Data, in likelihood.Instrument, plus, minus int, level float64) error {
-	g := func(x float64) string { return num(x + 0) } // + 0 turns -0 into 0
+	g := num
 	ll, err := likelihood.LogLik(net, d, likelihood.Options{Instrument: in})
 	if err != nil {
 		return err

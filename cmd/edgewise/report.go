@@ -7,6 +7,7 @@ import (
 	"encoding/json"
 	"fmt"
 	"io"
+	"math"
 	"strconv"
 	"strings"
 
@@ -207,3 +208,18 @@ func isNumber(s string) bool {
 	_, err := strconv.ParseFloat(strings.TrimSpace(s), 64)
 	return err == nil
 }
+
+// num formats a number for tables: 5 significant digits, "+inf", "-inf",
+// and "n/a" for an undefined value.
+func num(x float64) string {
+	switch {
+	case math.IsNaN(x):
+		return "n/a"
+	case math.IsInf(x, 1):
+		return "+inf"
+	case math.IsInf(x, -1):
+		return "-inf"
+	}
+	return strconv.FormatFloat(x+0, 'g', 5, 64) // + 0 turns -0 into 0
+}
+
