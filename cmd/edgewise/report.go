@@ -222,4 +222,3 @@ func num(x float64) string {
 	}
 	return strconv.FormatFloat(x+0, 'g', 5, 64) // + 0 turns -0 into 0
 }
-
