@@ -469,7 +469,15 @@ func fluctSymmetry(kind string, blocks []fluctBlock, offset int, dur float64, op
 	if s.DF > 0 {
 		s.LinearP = chiSquareSF(s.Chi2, s.DF)
 	}
+	var rare int64
+	for _, pt := range s.Points {
+		rare += min(pt.Plus, pt.Minus)
+	}
 	s.Versus = fluctCompare(blocks, slope, se, pairs, opt, stream, offset)
+	if rare < minRareWindows && !math.IsNaN(s.Versus.Z) {
+		s.Versus.Agrees = false
+		s.Versus.Verdict = fmt.Sprintf("no verdict: only %d windows of the rarer sign in the fitted pairs (need %d); use shorter windows or more data", rare, minRareWindows)
+	}
 	return s
 }
 
@@ -543,6 +551,18 @@ func fluctSlopeOfCounts(count []int64, offset int) float64 {
 	return sxy / sxx
 }
 
+// minRareWindows is the least number of windows of the rarer sign, summed
+// over the fitted pairs (c, -c), for which a verdict is given: below it the
+// log-ratios rest on a handful of windows, their delta-method variances
+// are unreliable and the bootstrap mostly draws empty pairs.
+const minRareWindows = 10
+
+// maxFailedShare is the largest share of bootstrap replicates with an
+// undefined slope or F for which the bootstrap SE is used; above it the
+// surviving replicates are a biased selection and the conservative
+// quadrature SE is used instead.
+const maxFailedShare = 0.05
+
 // fluctCompare sets the slope against F. With at least minBootBlocks blocks and
 // opt.Boot > 0 the SE of slope - F comes from a block bootstrap (blocks
 // drawn with replacement, both statistics recomputed from the same draw),
@@ -589,7 +609,7 @@ func fluctCompare(blocks []fluctBlock, slope, seSlope float64, pairs [2][2]int64
 			fs = append(fs, fb)
 		}
 		cmp.Replicates = opt.Boot
-		if len(ds) >= 2 {
+		if len(ds) >= 2 && float64(cmp.Failed) <= maxFailedShare*float64(opt.Boot) {
 			cmp.Diff.SE = stat.StdDev(ds, nil)
 			cmp.Corr = stat.Correlation(ss, fs, nil)
 			cmp.Diff.Method = fmt.Sprintf("block bootstrap, %d blocks, %d replicates", len(blocks), len(ds))
@@ -598,6 +618,9 @@ func fluctCompare(blocks []fluctBlock, slope, seSlope float64, pairs [2][2]int64
 	if math.IsNaN(cmp.Diff.SE) {
 		cmp.Diff.SE = math.Sqrt(seSlope*seSlope + vf)
 		cmp.Diff.Method = "both SEs in quadrature (too few blocks for a bootstrap; conservative)"
+		if cmp.Failed > 0 {
+			cmp.Diff.Method = "both SEs in quadrature (too many bootstrap replicates with an undefined slope; conservative)"
+		}
 	}
 	if cmp.Failed > 0 {
 		cmp.Diff.Note = fmt.Sprintf("%d of %d bootstrap replicates had an undefined slope or F and were dropped", cmp.Failed, cmp.Replicates)

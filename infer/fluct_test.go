@@ -279,3 +279,36 @@ func TestMultiEdgeLabelsBreakSymmetry(t *testing.T) {
 		}
 	}
 }
+
+// TestFluctNoVerdictOnFewWindows: windows of 100 events of the shipped
+// ring4 demo (F = 1.1) leave only a couple of windows of negative current;
+// the test must then decline a verdict rather than report a difference that
+// rests on two windows (and a bootstrap that mostly draws empty pairs).
+func TestFluctNoVerdictOnFewWindows(t *testing.T) {
+	d, _, err := ReadFile("../testdata/ring4-demo.csv", ReadOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	res, err := FluctuationTest(d, []int{5, 100}, FluctOptions{Boot: 100, Seed: 1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, r := range res {
+		for _, s := range []Symmetry{r.Raw, r.PostSelected} {
+			var rare int64
+			for _, p := range s.Points {
+				rare += min(p.Plus, p.Minus)
+			}
+			declined := strings.HasPrefix(s.Versus.Verdict, "no verdict: only")
+			if declined != (rare < minRareWindows) {
+				t.Errorf("n=%d %s: %d rare windows, verdict %q", r.N, s.Kind, rare, s.Versus.Verdict)
+			}
+			if declined && s.Versus.Agrees {
+				t.Errorf("n=%d %s: declined verdict marked as agreeing", r.N, s.Kind)
+			}
+		}
+	}
+	if !strings.HasPrefix(res[1].PostSelected.Versus.Verdict, "no verdict") || strings.HasPrefix(res[0].PostSelected.Versus.Verdict, "no verdict") {
+		t.Errorf("want a verdict at n=5 and none at n=100: %q, %q", res[0].PostSelected.Versus.Verdict, res[1].PostSelected.Versus.Verdict)
+	}
+}
