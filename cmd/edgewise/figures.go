@@ -170,8 +170,11 @@ func fluctPanel(r infer.Fluctuation, showRaw, showPost bool) (*plot.Plot, error)
 		p.Add(fit)
 		p.Legend.Add(fmt.Sprintf("fit, slope %.3g", s), fit)
 	}
-	p.X.Min = 0
+	// Leave room beyond the last c so the offset points and their bars are
+	// not cut at the frame, and put the legend where the lines are not.
+	p.X.Min, p.X.Max = 0, math.Max(p.X.Max, cmax+0.5)
 	p.Y.Min = math.Min(p.Y.Min, 0)
+	p.Legend.Left, p.Legend.Top = false, false
 	p.X.Tick.Marker = intTicks{parity: -1}
 	return p, nil
 }

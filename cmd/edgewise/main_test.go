@@ -98,6 +98,9 @@ func TestDescribeConstraintsAndLatex(t *testing.T) {
 	if strings.Count(s, "\\toprule") != strings.Count(s, "\\bottomrule") || !strings.Contains(s, "affinity (k\\_BT)") || strings.Contains(s, "k_BT") {
 		t.Errorf("latex output malformed:\n%s", s)
 	}
+	if got := texRow([]string{"[1, 2]", "[3]"}); got != `{}[1, 2] & [3]` {
+		t.Errorf("texRow: %s", got)
+	}
 	if got := texEscape(`50% of a_b & {x} $1 #2 ~ ^ \`); got != `50\% of a\_b \& \{x\} \$1 \#2 \textasciitilde{} \textasciicircum{} \textbackslash{}` {
 		t.Errorf("texEscape: %s", got)
 	}

@@ -188,6 +188,11 @@ func texRow(cells []string) string {
 	out := make([]string, len(cells))
 	for i, c := range cells {
 		out[i] = texEscape(c)
+		if i == 0 && strings.HasPrefix(out[i], "[") {
+			// After the previous row's \\, a "[" would be read as its
+			// optional argument.
+			out[i] = "{}" + out[i]
+		}
 	}
 	return strings.Join(out, " & ")
 }
