@@ -447,3 +447,29 @@ func TestAgreesWithPredictor(t *testing.T) {
 		}
 	}
 }
+
+// TestPutFirst: renumbering labels keeps every event's label name and
+// leaves ln L unchanged (labels are matched to the model by name).
+func TestPutFirst(t *testing.T) {
+	d := &Data{Labels: []string{"-", "x", "+"}, Records: []Record{
+		{Time: []float64{1, 2, 3, 4}, Label: []uint8{0, 2, 1, 2}, End: math.NaN()},
+		{Time: []float64{1, 5}, Label: []uint8{2, 0}, End: math.NaN()},
+	}}
+	names := func(d *Data) []string {
+		var out []string
+		for _, r := range d.Records {
+			for _, l := range r.Label {
+				out = append(out, d.Labels[l])
+			}
+		}
+		return out
+	}
+	before := names(d)
+	d.PutFirst("+", "-", "absent")
+	if got := strings.Join(d.Labels, " "); got != "+ - x" {
+		t.Fatalf("labels %q, want \"+ - x\"", got)
+	}
+	if after := names(d); strings.Join(after, "") != strings.Join(before, "") {
+		t.Fatalf("events changed: %v -> %v", before, after)
+	}
+}

@@ -73,3 +73,41 @@ func (d *Data) Validate() error {
 	}
 	return nil
 }
+
+// PutFirst renumbers the labels so that the named ones (those present)
+// come first, in the order given, and the others keep their relative
+// order. Every event's label index is rewritten; times are untouched.
+func (d *Data) PutFirst(names ...string) {
+	var order []int // new index -> old index
+	taken := make([]bool, len(d.Labels))
+	for _, n := range names {
+		for i, l := range d.Labels {
+			if l == n && !taken[i] {
+				order = append(order, i)
+				taken[i] = true
+			}
+		}
+	}
+	for i := range d.Labels {
+		if !taken[i] {
+			order = append(order, i)
+		}
+	}
+	perm := make([]uint8, len(d.Labels)) // old index -> new index
+	labels := make([]string, len(d.Labels))
+	identity := true
+	for newIdx, old := range order {
+		perm[old] = uint8(newIdx)
+		labels[newIdx] = d.Labels[old]
+		identity = identity && newIdx == old
+	}
+	if identity {
+		return
+	}
+	d.Labels = labels
+	for r := range d.Records {
+		for k, l := range d.Records[r].Label {
+			d.Records[r].Label[k] = perm[l]
+		}
+	}
+}
