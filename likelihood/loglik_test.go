@@ -465,11 +465,17 @@ func TestPutFirst(t *testing.T) {
 		return out
 	}
 	before := names(d)
-	d.PutFirst("+", "-", "absent")
+	if err := d.PutFirst("+", "-", "absent"); err != nil {
+		t.Fatal(err)
+	}
 	if got := strings.Join(d.Labels, " "); got != "+ - x" {
 		t.Fatalf("labels %q, want \"+ - x\"", got)
 	}
 	if after := names(d); strings.Join(after, "") != strings.Join(before, "") {
 		t.Fatalf("events changed: %v -> %v", before, after)
+	}
+	d.Records[0].Label[0] = 9
+	if err := d.PutFirst("x"); err == nil || d.Labels[0] != "+" {
+		t.Fatalf("bad index: err %v, labels %v (must be unchanged)", err, d.Labels)
 	}
 }

@@ -76,8 +76,17 @@ func (d *Data) Validate() error {
 
 // PutFirst renumbers the labels so that the named ones (those present)
 // come first, in the order given, and the others keep their relative
-// order. Every event's label index is rewritten; times are untouched.
-func (d *Data) PutFirst(names ...string) {
+// order. Every event's label index is rewritten in place (a Data sharing
+// the Label slices sees the change); times are untouched. A label index
+// outside the table is an error and leaves d unchanged.
+func (d *Data) PutFirst(names ...string) error {
+	for r := range d.Records {
+		for k, l := range d.Records[r].Label {
+			if int(l) >= len(d.Labels) {
+				return fmt.Errorf("record %q event %d: label index %d outside the table of %d labels", d.Records[r].ID, k, l, len(d.Labels))
+			}
+		}
+	}
 	var order []int // new index -> old index
 	taken := make([]bool, len(d.Labels))
 	for _, n := range names {
@@ -102,7 +111,7 @@ func (d *Data) PutFirst(names ...string) {
 		identity = identity && newIdx == old
 	}
 	if identity {
-		return
+		return nil
 	}
 	d.Labels = labels
 	for r := range d.Records {
@@ -110,4 +119,5 @@ func (d *Data) PutFirst(names ...string) {
 			d.Records[r].Label[k] = perm[l]
 		}
 	}
+	return nil
 }

@@ -131,7 +131,10 @@ func cmdFluct(args []string, stdout, stderr io.Writer) int {
 	if err != nil {
 		return fail(1, err)
 	}
-	d.PutFirst(fwd, bwd) // tables list the visible edge's labels first
+	if err := d.PutFirst(fwd, bwd); err != nil { // tables list the visible edge's labels first
+		fmt.Fprintf(stderr, "edgewise: %v\n", err)
+		return 1
+	}
 	edge := infer.EdgeLabels{Forward: fwd, Backward: bwd}
 	res, err := infer.FluctuationTest(d, ns, infer.FluctOptions{Labels: edge, Level: *level, Boot: *boot, Seed: *seed, FixedTime: *fixed})
 	if err != nil {

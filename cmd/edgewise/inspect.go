@@ -96,7 +96,10 @@ func cmdInspect(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "edgewise: %v\n", err)
 		return 1
 	}
-	d.PutFirst(plus, minus) // tables list the visible edge's labels first
+	if err := d.PutFirst(plus, minus); err != nil { // tables list the visible edge's labels first
+		fmt.Fprintf(stderr, "edgewise: %v\n", err)
+		return 1
+	}
 	r, err := inspectReport(d, rep, inspectConfig{plus: plus, minus: minus, level: *rf.level, perRecord: *perRecord, window: *window, boot: *boot, dboot: *boot, shapeBoot: *shapeBoot, seed: *seed})
 	if err != nil {
 		fmt.Fprintf(stderr, "edgewise: %v\n", err)
