@@ -85,13 +85,7 @@ func cmdDescribe(args []string, stdout, stderr io.Writer) int {
 	if math.IsInf(sigma, 1) {
 		r.Notes = append(r.Notes, "a one-way edge carries current: every affinity through it is infinite")
 	}
-	gen := func(w io.Writer) error { return r.write(w, *format) }
-	if *out == "-" {
-		err = gen(stdout)
-	} else {
-		err = writeAtomic(*out, *force, gen)
-	}
-	if err != nil {
+	if err := emit(*out, *force, stdout, func(w io.Writer) error { return r.write(w, *format) }); err != nil {
 		fmt.Fprintf(stderr, "edgewise: %v\n", err)
 		return 1
 	}

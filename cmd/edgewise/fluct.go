@@ -168,13 +168,7 @@ func cmdFluct(args []string, stdout, stderr io.Writer) int {
 	if err := writeFluctFigures(d, res, *post == "both", *plotPath, *histPath, *pnPath, *force); err != nil {
 		return fail(1, err)
 	}
-	gen := func(w io.Writer) error { return r.write(w, *format) }
-	if *out == "-" {
-		err = gen(stdout)
-	} else {
-		err = writeAtomic(*out, *force, gen)
-	}
-	if err != nil {
+	if err := emit(*out, *force, stdout, func(w io.Writer) error { return r.write(w, *format) }); err != nil {
 		return fail(1, err)
 	}
 	return 0

@@ -111,13 +111,7 @@ func cmdInspect(args []string, stdout, stderr io.Writer) int {
 	if path == "-" {
 		r.Input = "stdin"
 	}
-	gen := func(w io.Writer) error { return r.write(w, *format) }
-	if *out == "-" {
-		err = gen(stdout)
-	} else {
-		err = writeAtomic(*out, *force, gen)
-	}
-	if err != nil {
+	if err := emit(*out, *force, stdout, func(w io.Writer) error { return r.write(w, *format) }); err != nil {
 		fmt.Fprintf(stderr, "edgewise: %v\n", err)
 		return 1
 	}

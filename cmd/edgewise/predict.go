@@ -130,13 +130,7 @@ func cmdPredict(args []string, stdout, stderr io.Writer) int {
 		}
 	}
 	r.Notes = append(r.Notes, "predictions at the model's start values; they hold for data taken through the same detection process (detection probabilities, dead time)")
-	gen := func(w io.Writer) error { return r.write(w, *format) }
-	if *out == "-" {
-		err = gen(stdout)
-	} else {
-		err = writeAtomic(*out, *force, gen)
-	}
-	if err != nil {
+	if err := emit(*out, *force, stdout, func(w io.Writer) error { return r.write(w, *format) }); err != nil {
 		fmt.Fprintf(stderr, "edgewise: %v\n", err)
 		return 1
 	}

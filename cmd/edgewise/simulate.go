@@ -95,12 +95,7 @@ func cmdSimulate(args []string, stdout, stderr io.Writer) int {
 		}
 		return bw.Flush()
 	}
-	if *out == "-" {
-		err = gen(stdout)
-	} else {
-		err = writeAtomic(*out, *force, gen)
-	}
-	if err != nil {
+	if err := emit(*out, *force, stdout, gen); err != nil {
 		fmt.Fprintf(stderr, "edgewise: %v\n", err)
 		return 1
 	}
@@ -136,6 +131,15 @@ func writeAtomic(path string, force bool, gen func(io.Writer) error) error {
 		return err
 	}
 	return os.Rename(tmp.Name(), path)
+}
+
+// emit writes gen's output to standard output when path is "-", else to
+// the file path through writeAtomic.
+func emit(path string, force bool, stdout io.Writer, gen func(io.Writer) error) error {
+	if path == "-" {
+		return gen(stdout)
+	}
+	return writeAtomic(path, force, gen)
 }
 
 // checkOutput fails when path exists and force is not set, so that a
