@@ -24,13 +24,33 @@ func (n *Network) Stationary() ([]float64, error) {
 	for _, t := range n.Transitions() {
 		a[t.From][t.To] += t.Rate
 	}
+	pi, bad := GTH(a)
+	if bad >= 0 {
+		return nil, fmt.Errorf("stationary distribution: network is not strongly connected (state %s is absorbing after reduction)", n.States[bad])
+	}
+	if pi == nil {
+		return nil, fmt.Errorf("stationary distribution: normalisation failed")
+	}
+	return pi, nil
+}
+
+// GTH returns the stationary law of the irreducible chain whose
+// off-diagonal rates (or transition probabilities) are a[i][j] >= 0, i != j,
+// by the Grassmann-Taksar-Heyman reduction; the diagonal is ignored and a
+// is overwritten. Only additions, multiplications and divisions of
+// non-negative numbers occur, so each entry has high relative accuracy.
+// When the chain is not irreducible it returns nil and the index of a
+// state left without exits by the reduction (or nil and -1 when the
+// normalisation overflows). Cost O(n^3).
+func GTH(a [][]float64) ([]float64, int) {
+	k := len(a)
 	for m := k - 1; m >= 1; m-- {
 		s := 0.0
 		for j := 0; j < m; j++ {
 			s += a[m][j]
 		}
 		if !(s > 0) {
-			return nil, fmt.Errorf("stationary distribution: network is not strongly connected (state %s is absorbing after reduction)", n.States[m])
+			return nil, m
 		}
 		for i := 0; i < m; i++ {
 			a[i][m] /= s
@@ -59,12 +79,12 @@ func (n *Network) Stationary() ([]float64, error) {
 		total += s
 	}
 	if !(total > 0) || math.IsInf(total, 0) {
-		return nil, fmt.Errorf("stationary distribution: normalisation failed (sum %g)", total)
+		return nil, -1
 	}
 	for i := range pi {
 		pi[i] /= total
 	}
-	return pi, nil
+	return pi, -1
 }
 
 // Currents returns the stationary probability current of each edge in the
