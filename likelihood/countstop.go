@@ -154,11 +154,19 @@ func (p *Predictor) checkCount(n int, q []int) error {
 	for _, x := range q {
 		lo, hi = min(lo, x), max(hi, x)
 	}
-	if float64(n)*float64(hi-lo) > 1e7 {
-		return fmt.Errorf("likelihood: count-stopped: n = %d with weights in [%d, %d] gives more than 1e7 values of c", n, lo, hi)
+	if cells := (float64(n)*float64(hi-lo) + 1) * float64(max(len(p.support), 1)); cells > obsMaxCells {
+		return fmt.Errorf("likelihood: count-stopped: n = %d with weights in [%d, %d] over %d post-event states needs %.3g cells per working array, more than %d (%d MiB)", n, lo, hi, len(p.support), cells, obsMaxCells, obsMaxCells*8>>20)
 	}
 	return nil
 }
+
+// obsMaxCells caps the size of the dynamic programmes of CountStopped and
+// FixedTime: values of c times states, per working array. A programme
+// holds two such arrays of float64 (current and next), so the cap is
+// 2 * 8 * 2^24 bytes = 256 MiB of working memory (the dead-time fixed-time
+// programme, which keeps four arrays per event layer, is capped on its
+// total at the same figure).
+const obsMaxCells = 1 << 24
 
 // obsEntry is one non-zero entry of M_l restricted to the post-event states.
 type obsEntry struct {

@@ -42,8 +42,15 @@
 // treating consecutive gaps as independent intervals ignores that two
 // consecutive gaps share the phase of the event between them (their
 // errors are anti-correlated). The approximation is good when F is small
-// against the time scales of D0 and degrades as F grows. A censored end
-// (below) is taken as exact.
+// against the time scales of D0 and degrades as F grows.
+//
+// At the record's boundaries the same convention (timestamps are frame
+// starts, the clock origin 0 is a frame start) gives: for a stationary
+// start, the first event lies in [t_1, t_1 + F), and E(t_1) is the
+// integral over that box, exactly; for a censored end (End exact), the
+// last event lies in [t_n, t_n + F), and the censored interval is taken
+// at its centre, End - t_n - F/2 (the survival at the mean instead of the
+// mean survival, the same order of approximation as the gap boxes).
 //
 // # Log-likelihood
 //
@@ -51,9 +58,10 @@
 //
 //	L_r = alpha_1 M_2 M_3 ... M_n u,
 //
-// with u = 1, or, when Record.End is known, u = exp(L delta) exp(D0 (End -
-// t_n - delta)) 1 for End - t_n > delta and u = 1 otherwise (no event can
-// be detected while the instrument is dead). The start (Options.Start):
+// with u = 1, or, when Record.End is known, u = exp(L delta) exp(D0 T) 1
+// with T = End - t_n - delta (End - t_n - F/2 - delta with frames) when
+// T > 0, and u = 1 otherwise (no event can be detected while the
+// instrument is dead). The start (Options.Start):
 //
 //   - StartFirstEvent (default): the record is conditioned on its first
 //     event; alpha_1 = w0 D_{l_1} / (w0 D_{l_1} 1), w0 = nu exp(L delta)
@@ -64,8 +72,9 @@
 //     first event's time and label then contribute nothing.
 //   - StartStationary: the observation began at time 0 in the stationary
 //     law pi with the instrument ready, and L_r = pi E(t_1) D_{l_1} M_2 ...
-//     M_n u, E(t_1) without dead time: the density of the first event is
-//     included.
+//     M_n u, E(t_1) without dead time (with frames, the integral over
+//     [t_1, t_1 + F], see above): the density (probability) of the first
+//     event is included.
 //
 // ln L is the sum over records. General path: the forward recursion
 // alpha_k = alpha_{k-1} M_k, with alpha rescaled to sum 1 at every step and
@@ -84,6 +93,20 @@
 // Long gaps do not underflow on the spectral route: exp(D0 t) is evaluated
 // as e^{lmax t} times W B(e^{(lambda - lmax) t}) W^{-1}, lmax the Perron
 // (largest real) eigenvalue of D0, and lmax t is added to ln L directly.
+//
+// A spectral value is a sum of eigen-terms and is only absolutely
+// accurate (error about eps cond(V) sum |terms|); a psi that is small at
+// a short gap (a pair that needs several hidden steps) would lose its
+// relative accuracy. So every spectral value (the fast path's pair factor;
+// on the general path every entry of a propagated vector that the next
+// factor reads, exact zeros of the D0 reachability pattern set to 0) is
+// tested: if it is at most 1e-8 of the sum of its |terms|, that event is
+// recomputed by uniformisation, whose terms are all non-negative, with the
+// same shift; the value-only and gradient recursions make the same test,
+// so they give the same ln L. The gradient takes the sensitivities of
+// such an event from Van Loan blocks of the uniformisation factors (as on
+// the dense route, below) instead of the eigen-coordinate sums, which
+// would carry the same cancellation.
 //
 // Data labels are matched to model labels by name; a data label the model
 // does not have is an error, and so is an event the model cannot produce
@@ -118,11 +141,17 @@
 // exact timestamps the spectral route evaluates N scalar exponentials per
 // event, which costs no more than a cache lookup, and does not cache.
 //
-// The Pade route shifts likewise for exact times, exp(D0 t) =
+// The Pade (and uniformisation) route shifts likewise, exp(D0 t) =
 // e^{s t} exp((D0 - s I) t) with s the largest real part of D0's computed
-// eigenvalues; frame intervals are not shifted there, so on the Pade route
-// a frame interval so far out that its integral underflows (|lmax| t
-// beyond about 700) is reported as impossible.
+// eigenvalues, and s t is added to ln L; a frame interval is evaluated as
+// int_lo^hi exp(D0 u) du = e^{s lo} exp((D0 - s I) lo) int_0^w exp(D0 u) du
+// (w = hi - lo), both factors bounded, so frames far out neither underflow
+// nor lose digits in the subnormal range. Its gradient is split the same
+// way, d[e^{D0 lo} I(w)] = (d e^{D0 lo}) I(w) + e^{D0 lo} dI(w), into a Van
+// Loan block on D0 - s I over [0, lo] and one on D0 over the box [0, w],
+// both with bounded sums. Every matrix exponential goes through a guard:
+// a non-finite entry is an error, and a time so large that A t would
+// overflow is handled by halving and squaring.
 //
 // # Gradient
 //
@@ -149,7 +178,8 @@
 // frame interval, Phi is integrated over [lo, hi] (same form with
 // int e^{lambda s} ds and int s e^{lambda s} ds). On the Pade route K comes
 // from Van Loan's block exponential exp([[D0^T, X], [0, D0^T]] tau) (a 3x3
-// block form for frame intervals), summed per distinct interval. The dead
+// block form for the box [0, w] of a frame interval, see above), summed
+// per distinct interval. The dead
 // time term uses the same block exponential once, with L. The start law
 // w0 = nu G A is differentiated through dnu = nu dK (I - K + 1 nu)^{-1} and
 // dA = A dD0 A, and pi through dpi = -(pi dL) (L - 1 pi)^{-1}. The backward

@@ -503,7 +503,10 @@ func (p *Propagator) Condition() (cond, gap float64) {
 	return p.spec.cond, p.spec.gap
 }
 
-// Exp writes exp(A t) into dst (n x n, allocated when empty).
+// Exp writes exp(A t) into dst (n x n, allocated when empty). On the
+// Pade route a t so large that A t would overflow is handled by halving
+// and squaring (a sub-generator's exp(A t) underflows to 0 there); a
+// non-finite result is an error, never a hang.
 func (p *Propagator) Exp(dst *mat.Dense, t float64) error {
 	if math.IsNaN(t) || math.IsInf(t, 0) {
 		return fmt.Errorf("likelihood: exp(A t) at t = %v", t)
@@ -526,10 +529,7 @@ func (p *Propagator) Exp(dst *mat.Dense, t float64) error {
 		}
 		return expUniform(dst, p.a, t)
 	}
-	var at mat.Dense
-	at.Scale(t, p.a)
-	dst.Exp(&at)
-	return nil
+	return expScaled(dst, p.a, t)
 }
 
 // Integral writes int_lo^hi exp(A s) ds into dst, for 0 <= lo <= hi.
@@ -575,11 +575,13 @@ func (p *Propagator) Integral(dst *mat.Dense, lo, hi float64) error {
 		}
 		big.Set(i, n+i, w)
 	}
-	var eb mat.Dense
-	eb.Exp(big)
-	var e0, at mat.Dense
-	at.Scale(lo, p.a)
-	e0.Exp(&at)
+	var eb, e0 mat.Dense
+	if err := expScaled(&eb, big, 1); err != nil {
+		return err
+	}
+	if err := expScaled(&e0, p.a, lo); err != nil {
+		return err
+	}
 	dst.Mul(&e0, eb.Slice(0, n, n, 2*n))
 	return nil
 }
@@ -599,10 +601,13 @@ func uniformSetup(a *mat.Dense, t float64) (q float64, pm *mat.Dense, j int) {
 	for i := 0; i < n; i++ {
 		pm.Set(i, i, pm.At(i, i)+1)
 	}
-	x := q * t
-	for x > 1 {
-		x /= 2
-		j++
+	// j from logarithms, so that q t may overflow (a huge t) without
+	// making the halving loop run forever.
+	if q*t > 1 {
+		j = max(0, int(math.Ceil(math.Log2(q)+math.Log2(t))))
+		for q*math.Ldexp(t, -j) > 1 {
+			j++
+		}
 	}
 	return q, pm, j
 }
@@ -627,12 +632,9 @@ func expUniform(dst *mat.Dense, a *mat.Dense, t float64) error {
 	}
 	if q == 0 {
 		// Zero diagonal: nothing to uniformise; Pade handles this corner.
-		var at mat.Dense
-		at.Scale(t, a)
-		dst.Exp(&at)
-		return nil
+		return expScaled(dst, a, t)
 	}
-	x := q * t / math.Ldexp(1, j)
+	x := q * math.Ldexp(t, -j)
 	pmf := math.Exp(-x)
 	acc := mat.NewDense(n, n, nil)
 	pow := mat.NewDense(n, n, nil)
@@ -664,7 +666,7 @@ func integralUniform(dst *mat.Dense, a *mat.Dense, w float64) error {
 	if q == 0 {
 		return errors.New("likelihood: uniformisation integral of a matrix with zero diagonal")
 	}
-	x := q * w / math.Ldexp(1, j)
+	x := q * math.Ldexp(w, -j)
 	// pmf_k and tails P(Pois(x) > k), the tail summed from the far end.
 	pmf := make([]float64, uniformTerms+1)
 	pmf[0] = math.Exp(-x)
@@ -704,4 +706,53 @@ func scaled(a *mat.Dense, f float64) *mat.Dense {
 	var s mat.Dense
 	s.Scale(f, a)
 	return &s
+}
+
+// expScaled writes exp(a t) into dst by gonum's scaling and squaring
+// (mat.Dense.Exp), guarded: a matrix or a time with a non-finite entry is
+// an error (gonum would loop forever on an infinite norm), and when the
+// 1-norm of a t would overflow, exp(a t/2^j) is computed and squared j
+// times (for a sub-generator every power is bounded by 1, so the squaring
+// cannot overflow). A non-finite result is an error.
+func expScaled(dst *mat.Dense, a *mat.Dense, t float64) error {
+	if math.IsNaN(t) || math.IsInf(t, 0) {
+		return fmt.Errorf("likelihood: exp(A t) at t = %v", t)
+	}
+	r, c := a.Dims()
+	if r != c {
+		return fmt.Errorf("likelihood: exp of a %dx%d matrix", r, c)
+	}
+	if !allFinite(a.RawMatrix().Data) {
+		return errors.New("likelihood: exp of a matrix with a non-finite entry")
+	}
+	n1 := mat.Norm(a, 1)
+	if math.IsInf(n1, 0) {
+		return errors.New("likelihood: exp of a matrix whose norm overflows")
+	}
+	j := 0
+	for n1*math.Abs(t) > 1e300 {
+		t = math.Ldexp(t, -1)
+		j++
+	}
+	var at mat.Dense
+	at.Scale(t, a)
+	dst.Exp(&at)
+	var tmp mat.Dense
+	for ; j > 0; j-- {
+		tmp.Mul(dst, dst)
+		dst.Copy(&tmp)
+	}
+	if !allFinite(dst.RawMatrix().Data) {
+		return errors.New("likelihood: exp(A t) overflows")
+	}
+	return nil
+}
+
+func allFinite(v []float64) bool {
+	for _, x := range v {
+		if math.IsNaN(x) || math.IsInf(x, 0) {
+			return false
+		}
+	}
+	return true
 }

@@ -82,10 +82,16 @@ func (p *Predictor) FixedTime(t float64, q []int) (CountDist, error) {
 		}
 	}
 	kmax := len(logw) - 1
-	if float64(kmax)*float64(qhi-qlo) > 1e7 {
-		return CountDist{}, fmt.Errorf("likelihood: fixed-time law: %d jumps with weights in [%d, %d] give too many values of c", kmax, qlo, qhi)
+	if cells := (float64(kmax)*float64(qhi-qlo) + 1) * float64(n); cells > obsMaxCells {
+		return CountDist{}, fmt.Errorf("likelihood: fixed-time law: %d jumps with weights in [%d, %d] over %d states need %.3g cells per working array, more than %d (%d MiB)", kmax, qlo, qhi, n, cells, obsMaxCells, obsMaxCells*8>>20)
 	}
 	if p.delta > 0 {
+		// Four arrays per layer k = 0..kmax of width k (qhi - qlo) + 1.
+		km := float64(kmax)
+		total := 4 * float64(n) * ((km + 1) + float64(qhi-qlo)*km*(km+1)/2)
+		if total > 2*obsMaxCells {
+			return CountDist{}, fmt.Errorf("likelihood: fixed-time law with dead time: %d jumps with weights in [%d, %d] over %d states need %.3g cells, more than %d (%d MiB)", kmax, qlo, qhi, n, total, 2*obsMaxCells, 2*obsMaxCells*8>>20)
+		}
 		return p.fixedTimeDead(t, q, qlo, qhi, lam, kmax)
 	}
 

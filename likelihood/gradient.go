@@ -93,12 +93,23 @@ func ModelLogLikGrad(m *models.Model, x []float64, d *Data, opt Options) (float6
 // memory O(N (n/C + C)) per record instead of O(N n).
 const gradCheckpoint = 512
 
-// backStep sets beta <- M beta / scale with M = G E D_l (or E D_l).
-func (e *Evaluator) backStep(ws *work, beta []float64, st stepInfo) error {
+// backStep sets beta <- M beta / scale with M = G E D_l (or E D_l). need
+// lists the entries of the result that the recursion reads next (the
+// targets of the previous step's label, see needBefore); on the spectral
+// route they are checked for cancellation.
+func (e *Evaluator) backStep(ws *work, beta []float64, st stepInfo, need []int) error {
 	e.applyDCol(ws.b, beta, st.lab)
 	out := ws.alpha2
 	if err := e.propCol(ws, out, ws.b, st.lo, st.hi, false); err != nil {
 		return err
+	}
+	if e.sp != nil && e.colCancels(out, ws.y, ws.b, ws.mag, st.useG, need) {
+		// The eigen-sum cancelled: recompute entry-wise (see spectralRelFloor).
+		m, err := e.accurateE(ws, st.lo, st.hi)
+		if err != nil {
+			return err
+		}
+		timesCol(out, m, ws.b, e.n)
 	}
 	if st.useG {
 		timesCol(beta, e.g, out, e.n)
@@ -117,6 +128,28 @@ func (e *Evaluator) backStep(ws *work, beta []float64, st stepInfo) error {
 	}
 	for i := range beta {
 		beta[i] /= s
+	}
+	return nil
+}
+
+// needBefore returns the entries of the backward vector before step s
+// that the recursion reads: D_l beta reads the targets of l, with l the
+// label of step s-1, or of the first event (StartFirstEvent, s = 0);
+// nothing reads it before the first step of a stationary start. Only the
+// spectral route uses it.
+func (e *Evaluator) needBefore(s int, info func(int) (stepInfo, error), l1 int) []int {
+	if e.sp == nil {
+		return nil
+	}
+	if s > 0 {
+		st, err := info(s - 1)
+		if err != nil || st.lab < 0 {
+			return nil
+		}
+		return e.needTo[st.lab]
+	}
+	if e.opt.Start == StartFirstEvent {
+		return e.needTo[l1]
 	}
 	return nil
 }
@@ -150,8 +183,8 @@ func (e *Evaluator) generalGrad(ws *work, rec *Record, steps int, info func(int)
 		if err != nil {
 			return err
 		}
-		if err := e.backStep(ws, beta, st); err != nil {
-			return impossible(rec, st.k, "likelihood", 0)
+		if err := e.backStep(ws, beta, st, e.needBefore(s, info, l1)); err != nil {
+			return fmt.Errorf("%w (backward recursion: %v)", impossible(rec, st.k, "likelihood", 0), err)
 		}
 	}
 	if e.opt.Start == StartFirstEvent {
@@ -181,8 +214,8 @@ func (e *Evaluator) generalGrad(ws *work, rec *Record, steps int, info func(int)
 			if err != nil {
 				return err
 			}
-			if err := e.backStep(ws, b, st); err != nil {
-				return impossible(rec, st.k, "likelihood", 0)
+			if err := e.backStep(ws, b, st, e.needBefore(s, info, l1)); err != nil {
+				return fmt.Errorf("%w (backward recursion: %v)", impossible(rec, st.k, "likelihood", 0), err)
 			}
 		}
 		for s := s0; s < s1; s++ {
@@ -195,10 +228,7 @@ func (e *Evaluator) generalGrad(ws *work, rec *Record, steps int, info func(int)
 			}
 		}
 	}
-	if e.sp == nil {
-		return e.flushVanLoan(ws)
-	}
-	return nil
+	return e.flushVanLoan(ws)
 }
 
 // forwardGradStep advances alpha over one step and accumulates the
@@ -223,13 +253,33 @@ func (e *Evaluator) forwardGradStep(ws *work, rec *Record, alpha, beta []float64
 	}
 	b := ws.b
 	e.applyDCol(b, beta, st.lab)
+	// Spectral route: the same entry-wise cancellation test as the
+	// value-only recursion, so that both give the same ln L; a cancelled
+	// step is recomputed by uniformisation (accm non-nil).
+	var accm []float64
+	if e.sp != nil && e.rowCancels(zv, ws.u, x, st.lab) {
+		if accm, err = e.accurateE(ws, st.lo, st.hi); err != nil {
+			return err
+		}
+		rowTimes(zv, x, accm, n)
+	}
 	c := dot(zv, b)
 	if !(c > 0) || c > math.MaxFloat64 {
 		return impossible(rec, st.k, "density", c)
 	}
 	needY := st.useG || st.k == 0 && e.opt.Start == StartStationary
 	y := ws.u // reused: y = E b
-	if s := e.sp; s != nil {
+	if s := e.sp; s != nil && accm != nil {
+		// A cancelled step: its sensitivities from the Van Loan blocks of
+		// the uniformisation factors (the eigen-coordinate sums would carry
+		// the same cancellation), flushed at the end of the record.
+		if err := e.vanLoanEvent(ws, x, b, c, st.lo, st.hi, e.accurateMat); err != nil {
+			return err
+		}
+		if needY {
+			timesCol(y, accm, b, n)
+		}
+	} else if s != nil {
 		// Eigen coordinates: a^ = V^T a (a = x^T), b^ = V^{-1} b.
 		s.rowHatTo(ws.ah, ws.u0)
 		timesCol(ws.v, s.wi, b, n)
@@ -260,21 +310,8 @@ func (e *Evaluator) forwardGradStep(ws *work, rec *Record, alpha, beta []float64
 			timesCol(y, s.w, ws.y, n)
 		}
 	} else {
-		key := [2]float64{st.lo, st.hi}
-		xv, ok := ws.vl[key]
-		if !ok {
-			xv = make([]float64, n*n)
-			ws.vl[key] = xv
-		}
-		for i := 0; i < n; i++ {
-			if x[i] == 0 {
-				continue
-			}
-			f := x[i] / c
-			row := xv[i*n : i*n+n]
-			for j := 0; j < n; j++ {
-				row[j] += f * b[j]
-			}
+		if err := e.vanLoanEvent(ws, x, b, c, st.lo, st.hi, e.denseMat); err != nil {
+			return err
 		}
 		if needY {
 			m, err := e.denseE(ws, st.lo, st.hi)
@@ -282,11 +319,6 @@ func (e *Evaluator) forwardGradStep(ws *work, rec *Record, alpha, beta []float64
 				return err
 			}
 			timesCol(y, m, b, n)
-		}
-		if len(ws.vl) > 64 {
-			if err := e.flushVanLoan(ws); err != nil {
-				return err
-			}
 		}
 	}
 	if needY {
@@ -325,23 +357,98 @@ func (e *Evaluator) forwardGradStep(ws *work, rec *Record, alpha, beta []float64
 	return nil
 }
 
+// vanLoanEvent adds the Van Loan sums of one event with factor
+// c = x E~(lo, hi) b, E~ the shifted factor that get returns (denseE or
+// accurateE; shift s = dshift or lmax). Exact time t: X(t, t) += x b^T / c,
+// differentiated on D0 - s I over [0, t]. Interval:
+// d[e^{D0 lo} I(w)] = (d e^{D0 lo}) I(w) + e^{D0 lo} dI(w), so
+// X(lo, lo) += x (I(w) b)^T / c (on D0 - s I over [0, lo]) and
+// X(0, w) += (x e^{(D0 - sI) lo}) b^T / c (on D0 over the box [0, w]):
+// both sums stay bounded however far out the interval lies. It flushes
+// the sums when more than 64 intervals are pending. Uses ws.y and ws.v.
+func (e *Evaluator) vanLoanEvent(ws *work, x, b []float64, c, lo, hi float64, get func(*work, float64, float64) ([]float64, error)) error {
+	n := e.n
+	if ws.vl == nil {
+		ws.vl = map[[2]float64][]float64{}
+	}
+	switch {
+	case lo == hi:
+		e.vanLoanAdd(ws, lo, lo, x, b, c)
+	case lo > 0:
+		w := hi - lo
+		m1, err := get(ws, lo, lo)
+		if err != nil {
+			return err
+		}
+		m2, err := get(ws, 0, w)
+		if err != nil {
+			return err
+		}
+		timesCol(ws.y, m2, b, n)
+		e.vanLoanAdd(ws, lo, lo, x, ws.y, c)
+		rowTimes(ws.v, x, m1, n)
+		e.vanLoanAdd(ws, 0, w, ws.v, b, c)
+	default:
+		e.vanLoanAdd(ws, 0, hi, x, b, c)
+	}
+	if len(ws.vl) > 64 {
+		return e.flushVanLoan(ws)
+	}
+	return nil
+}
+
+// denseMat and accurateMat adapt denseE and accurateE to vanLoanEvent.
+func (e *Evaluator) denseMat(ws *work, lo, hi float64) ([]float64, error) {
+	return e.denseE(ws, lo, hi)
+}
+
+func (e *Evaluator) accurateMat(ws *work, lo, hi float64) ([]float64, error) {
+	return e.accurateE(ws, lo, hi)
+}
+
+// vanLoanAdd adds x y^T / c to the dense route's Van Loan sum of the
+// interval key (lo, hi).
+func (e *Evaluator) vanLoanAdd(ws *work, lo, hi float64, x, y []float64, c float64) {
+	n := e.n
+	key := [2]float64{lo, hi}
+	xv, ok := ws.vl[key]
+	if !ok {
+		xv = make([]float64, n*n)
+		ws.vl[key] = xv
+	}
+	for i := 0; i < n; i++ {
+		if x[i] == 0 {
+			continue
+		}
+		f := x[i] / c
+		row := xv[i*n : i*n+n]
+		for j := 0; j < n; j++ {
+			row[j] += f * y[j]
+		}
+	}
+}
+
 // flushVanLoan turns the dense route's per-interval sums X = sum a b^T / c
-// into sensitivities to D0: K = int_0^t exp(D0^T s) X exp(D0^T (t-s)) ds,
-// the upper-right block of exp([[D0^T, X], [0, D0^T]] t) (Van Loan, IEEE
-// TAC 23, 395 (1978)); for a frame interval [lo, hi] the integral of that
-// over t, from the (1,3) block of a 3x3 block exponential.
+// into sensitivities to D0: K = int_0^t exp(A^T s) X exp(A^T (t-s)) ds,
+// the upper-right block of exp([[A^T, X], [0, A^T]] t) (Van Loan, IEEE
+// TAC 23, 395 (1978)), with A = D0 - s I for exact times (key (t, t): X
+// was accumulated with the shifted factor c e^{-s t}) and A = D0 for a box
+// (key (0, w)): the integral of that over t in [0, w], from the (1,3)
+// block of a 3x3 block exponential (see forwardGradStep for how a frame
+// interval [lo, hi] is split into these two).
 func (e *Evaluator) flushVanLoan(ws *work) error {
 	for key, xv := range ws.vl {
-		// Exact times: X was accumulated with the shifted factor c e^{-s t},
-		// so the block exponential uses the shifted D0 - s I as well.
 		a := e.k.D0
 		if key[0] == key[1] {
 			a = e.d0s
 		}
-		k := vanLoan(a, xv, key[0], key[1])
+		k, err := vanLoan(a, xv, key[0], key[1])
+		if err != nil {
+			return fmt.Errorf("likelihood: gradient over [%v, %v]: %w", key[0], key[1], err)
+		}
 		for i, v := range k {
-			if math.IsNaN(v) {
-				return errors.New("likelihood: Van Loan block exponential failed")
+			if math.IsNaN(v) || math.IsInf(v, 0) {
+				return fmt.Errorf("likelihood: Van Loan block exponential over [%v, %v] is not finite", key[0], key[1])
 			}
 			ws.acc.sd0[i] += v
 		}
@@ -351,8 +458,10 @@ func (e *Evaluator) flushVanLoan(ws *work) error {
 }
 
 // vanLoan returns int_0^t exp(A^T s) X exp(A^T (t-s)) ds for lo == hi == t,
-// or its integral over t in [lo, hi] otherwise (row-major n x n).
-func vanLoan(a *mat.Dense, xv []float64, lo, hi float64) []float64 {
+// or its integral over t in [lo, hi] otherwise (row-major n x n). The
+// evaluator calls the interval form with lo = 0 only (the difference
+// h(hi) - h(lo) of two block exponentials would cancel for lo far out).
+func vanLoan(a *mat.Dense, xv []float64, lo, hi float64) ([]float64, error) {
 	n, _ := a.Dims()
 	x := mat.NewDense(n, n, xv)
 	if lo == hi {
@@ -365,13 +474,15 @@ func vanLoan(a *mat.Dense, xv []float64, lo, hi float64) []float64 {
 			}
 		}
 		var eb mat.Dense
-		eb.Exp(big)
-		return mat.DenseCopyOf(eb.Slice(0, n, n, 2*n)).RawMatrix().Data
+		if err := expScaled(&eb, big, 1); err != nil {
+			return nil, err
+		}
+		return mat.DenseCopyOf(eb.Slice(0, n, n, 2*n)).RawMatrix().Data, nil
 	}
-	h := func(t float64) *mat.Dense {
+	h := func(t float64) (*mat.Dense, error) {
 		out := mat.NewDense(n, n, nil)
 		if t == 0 {
-			return out
+			return out, nil
 		}
 		big := mat.NewDense(3*n, 3*n, nil)
 		for i := 0; i < n; i++ {
@@ -383,13 +494,23 @@ func vanLoan(a *mat.Dense, xv []float64, lo, hi float64) []float64 {
 			big.Set(n+i, 2*n+i, t)
 		}
 		var eb mat.Dense
-		eb.Exp(big)
+		if err := expScaled(&eb, big, 1); err != nil {
+			return nil, err
+		}
 		out.Copy(eb.Slice(0, n, 2*n, 3*n))
-		return out
+		return out, nil
+	}
+	h1, err := h(hi)
+	if err != nil {
+		return nil, err
+	}
+	h0, err := h(lo)
+	if err != nil {
+		return nil, err
 	}
 	var k mat.Dense
-	k.Sub(h(hi), h(lo))
-	return k.RawMatrix().Data
+	k.Sub(h1, h0)
+	return k.RawMatrix().Data, nil
 }
 
 // finalize turns the accumulated sensitivities into the gradient with
@@ -505,7 +626,10 @@ func (e *Evaluator) finalize(acc *accum) (*Gradient, error) {
 		}
 	}
 	if e.g != nil {
-		k := vanLoan(e.k.L, sg, e.delta, e.delta)
+		k, err := vanLoan(e.k.L, sg, e.delta, e.delta)
+		if err != nil {
+			return nil, fmt.Errorf("likelihood: gradient through the dead time: %w", err)
+		}
 		addTo(sl, k)
 	}
 	g := &Gradient{LogRate: make([]float64, 2*len(e.k.net.Edges)), Detect: make([]float64, nl)}
@@ -528,6 +652,11 @@ func (e *Evaluator) finalize(acc *accum) (*Gradient, error) {
 	for _, v := range g.LogRate {
 		if math.IsNaN(v) || math.IsInf(v, 0) {
 			return nil, fmt.Errorf("likelihood: gradient is not finite (%v)", g.LogRate)
+		}
+	}
+	for _, v := range g.Detect {
+		if math.IsNaN(v) || math.IsInf(v, 0) {
+			return nil, fmt.Errorf("likelihood: gradient with respect to the detection probabilities is not finite (%v)", g.Detect)
 		}
 	}
 	return g, nil

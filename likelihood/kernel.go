@@ -78,8 +78,14 @@ func NewKernels(net *models.Network) (*Kernels, error) {
 }
 
 // SingleEdge reports whether every label sits on exactly one directed edge
-// and is detected with probability 1: the case where the state right after
-// each event is known and the likelihood is a product of psi values.
+// and is detected with probability 1 (perfect detection of single-edge
+// labels: every transition of a labelled edge is seen, and design.md's
+// psi_{l->l'}(t) = [exp(D0 t)]_{to(l), from(l')} w_{l'} holds with D0 the
+// hidden rates only). It is a property of the kernels, not the condition
+// of the Evaluator's fast path: that path needs only one directed edge
+// per label (any detection probability; a missed event is a hidden
+// transition inside D0, and the state right after a detected event is
+// still known) and the spectral route.
 func (k *Kernels) SingleEdge() bool {
 	for l, es := range k.Edges {
 		if len(es) != 1 || k.Detect[l] != 1 {

@@ -28,7 +28,9 @@ const (
 	// StartStationary assumes the observation began at time 0 (the clock
 	// origin of the record) with the chain in its stationary law pi and the
 	// instrument ready (no dead time running), and includes the density of
-	// the first event: pi exp(D0 t_1) D_{l_1}. Record times must be >= 0.
+	// the first event: pi exp(D0 t_1) D_{l_1}; with frames (timestamps are
+	// frame starts) the probability pi int_{t_1}^{t_1+F} exp(D0 s) ds D_{l_1}.
+	// Record times must be >= 0.
 	StartStationary
 )
 
@@ -101,9 +103,33 @@ type Evaluator struct {
 	hidx []int
 	hc0  []float64
 	hc   [][]float64
-	ahat [][]complex128 // [a] V^T a
-	bhat [][]complex128 // [b] V^{-1} b
+	// hfloor[p] = spectralRelFloor * sum |cf[p]|, an upper bound of the
+	// cancellation threshold at any tau >= 0.
+	hfloor []float64
+	ahat   [][]complex128 // [a] V^T a
+	bhat   [][]complex128 // [b] V^{-1} b
+	avec   [][]float64    // [a] the pair's row vector a (fast path)
+	bvec   [][]float64    // [b] the pair's column vector b (fast path)
+	// Spectral route, entry-wise accurate fallback: a value that is a sum
+	// of eigen-terms is only absolutely accurate (error ~ eps cond sum
+	// |terms|), so a value below spectralRelFloor times the sum of |terms|
+	// is recomputed by uniformisation (all terms non-negative), scaled by
+	// the same e^{-lmax lo} as the spectral value.
+	uexp   *Propagator // uniformisation of D0 - lmax I (exact times)
+	uint0  *Propagator // uniformisation of D0 (box integrals over [0, w])
+	reach  []bool      // reach[i*n+j]: j reachable from i under D0 (i reaches i)
+	need   [][]int     // [l] the distinct source states of D_l
+	needTo [][]int     // [l] the distinct target states of D_l
 }
+
+// spectralRelFloor: a spectral value f (a pair factor, or an entry of a
+// propagated vector on the general path) with f <= spectralRelFloor *
+// sum |terms| is recomputed by uniformisation. The spectral error is
+// about eps cond(V) sum |terms|, so above the threshold the relative
+// error is at most about eps cond(V) / spectralRelFloor (~2e-8 for
+// cond(V) ~ 1, the size of the fast path's eigen-sums on small rings),
+// and it falls as 1/f above it.
+const spectralRelFloor = 1e-8
 
 type dEntry struct {
 	i, j int
@@ -133,6 +159,9 @@ func NewEvaluator(k *Kernels, opt Options) (*Evaluator, error) {
 	e.prop = prop
 	if prop.Method() == ExpSpectral {
 		e.sp = prop.spec
+		if err := e.spectralFallback(); err != nil {
+			return nil, err
+		}
 	} else if err := e.denseShift(); err != nil {
 		return nil, err
 	}
@@ -148,9 +177,10 @@ func NewEvaluator(k *Kernels, opt Options) (*Evaluator, error) {
 		}
 	}
 	if e.delta > 0 {
-		var ld, g mat.Dense
-		ld.Scale(e.delta, k.L)
-		g.Exp(&ld)
+		var g mat.Dense
+		if err := expScaled(&g, k.L, e.delta); err != nil {
+			return nil, err
+		}
 		e.g = append([]float64(nil), g.RawMatrix().Data...)
 	}
 	if err := e.startLaw(); err != nil {
@@ -184,9 +214,16 @@ func NewEvaluator(k *Kernels, opt Options) (*Evaluator, error) {
 }
 
 // denseShift prepares the shifted matrix D0 - s I of the dense route, s
-// the largest real part of an eigenvalue of D0 (clamped at 0). The
-// eigenvalues of a defective matrix are perturbed by rounding, but any s
-// near the Perron eigenvalue keeps exp((D0 - s I) t) bounded.
+// the largest real part of a computed eigenvalue of D0 (clamped at 0).
+// The value is exact for any s (e^{s t} is added back to ln L); s only
+// has to keep exp((D0 - s I) t) away from underflow and overflow. For a
+// defective D0 (a Jordan block of size m at the Perron eigenvalue lmax,
+// e.g. an irreversible ring with equal rates) rounding moves the computed
+// eigenvalues by about eps^{1/m} |lmax|, so exp((D0 - s I) t) is not
+// bounded: it grows like t^{m-1} (the Jordan block) times
+// e^{(lmax - s) t}, exponentially only at the rate |lmax - s| ~ eps^{1/m}
+// |lmax| (6e-6 |lmax| for m = 3), which is harmless unless |lmax| t is
+// beyond ~1e5 (and even then only moves the scale of the shifted matrix).
 func (e *Evaluator) denseShift() error {
 	var eig mat.Eigen
 	s := 0.0
@@ -213,6 +250,191 @@ func (e *Evaluator) denseShift() error {
 	return nil
 }
 
+// spectralFallback prepares the uniformisation route used for events
+// whose spectral value cancels (see spectralRelFloor).
+func (e *Evaluator) spectralFallback() error {
+	n, s := e.n, e.sp
+	d0u := mat.DenseCopyOf(e.k.D0)
+	for i := 0; i < n; i++ {
+		// lmax >= max_i D0_ii for a Metzler matrix, so the diagonal stays
+		// <= 0 (up to rounding, which uniformisation tolerates).
+		d0u.Set(i, i, d0u.At(i, i)-s.lmax)
+	}
+	e.d0s = d0u // for the Van Loan sensitivities of cancelled events
+	var err error
+	if e.uexp, err = NewPropagator(d0u, ExpUniform); err != nil {
+		return err
+	}
+	if e.uint0, err = NewPropagator(e.k.D0, ExpUniform); err != nil {
+		return err
+	}
+	// Reachability under D0 (Warshall), for structural zeros.
+	e.reach = make([]bool, n*n)
+	for i := 0; i < n; i++ {
+		for j := 0; j < n; j++ {
+			e.reach[i*n+j] = i == j || e.k.D0.At(i, j) > 0
+		}
+	}
+	for k := 0; k < n; k++ {
+		for i := 0; i < n; i++ {
+			if !e.reach[i*n+k] {
+				continue
+			}
+			for j := 0; j < n; j++ {
+				if e.reach[k*n+j] {
+					e.reach[i*n+j] = true
+				}
+			}
+		}
+	}
+	e.need = make([][]int, len(e.k.D))
+	e.needTo = make([][]int, len(e.k.D))
+	for l, ts := range e.k.Edges {
+		seen, seenTo := map[int]bool{}, map[int]bool{}
+		for _, t := range ts {
+			if !seen[t.From] {
+				seen[t.From] = true
+				e.need[l] = append(e.need[l], t.From)
+			}
+			if !seenTo[t.To] {
+				seenTo[t.To] = true
+				e.needTo[l] = append(e.needTo[l], t.To)
+			}
+		}
+	}
+	return nil
+}
+
+// cancels reports whether a spectral value v = sum_k u_k h_k lost its
+// relative accuracy: v <= spectralRelFloor * sum_k |u_k h_k|.
+func cancels(v float64, u, h []float64) bool {
+	m := 0.0
+	for k, x := range u {
+		m += math.Abs(x * h[k])
+	}
+	return !(v > spectralRelFloor*m)
+}
+
+// rowCancels checks the spectral row out = u W^{-1} (u = x W B(z), as
+// propRow leaves it in ws.u) entry-wise on the states that D_l reads (all
+// states for the end step, l < 0): an entry that is structurally zero
+// (no state of x's support reaches it under D0) is set to 0; any other
+// entry at or below spectralRelFloor times the sum of its |terms| means
+// the row lost relative accuracy (true is returned).
+func (e *Evaluator) rowCancels(out, u, x []float64, l int) bool {
+	n, wi := e.n, e.sp.wi
+	bad := false
+	check := func(j int) {
+		structural := true
+		for i, v := range x {
+			if v != 0 && e.reach[i*n+j] {
+				structural = false
+				break
+			}
+		}
+		if structural {
+			out[j] = 0
+			return
+		}
+		m := 0.0
+		for k, uk := range u {
+			m += math.Abs(uk * wi[k*n+j])
+		}
+		if !(out[j] > spectralRelFloor*m) {
+			bad = true
+		}
+	}
+	if l < 0 {
+		for j := 0; j < n; j++ {
+			check(j)
+		}
+	} else {
+		for _, j := range e.need[l] {
+			check(j)
+		}
+	}
+	return bad
+}
+
+// colCancels is rowCancels for the spectral column out = W y (y = B(z)
+// W^{-1} b, as propCol leaves it in ws.y), before the backward step's
+// exp(L delta) (when useG): structural zeros of out are set to 0, and the
+// entries need of the step's result (G out, or out) are checked against
+// the same combination of the |terms|. mag is scratch space of length n.
+func (e *Evaluator) colCancels(out, y, b, mag []float64, useG bool, need []int) bool {
+	n, w := e.n, e.sp.w
+	for i := 0; i < n; i++ {
+		structural := true
+		for j, v := range b {
+			if v != 0 && e.reach[i*n+j] {
+				structural = false
+				break
+			}
+		}
+		mag[i] = 0
+		if structural {
+			out[i] = 0
+			continue
+		}
+		for k, yk := range y {
+			mag[i] += math.Abs(w[i*n+k] * yk)
+		}
+	}
+	for _, j := range need {
+		v, m := out[j], mag[j]
+		if useG {
+			v, m = 0, 0
+			row := e.g[j*n : j*n+n]
+			for i, gv := range row {
+				v += gv * out[i]
+				m += math.Abs(gv) * mag[i]
+			}
+		}
+		if m > 0 && !(v > spectralRelFloor*m) {
+			return true // (m == 0: an exact structural zero)
+		}
+	}
+	return false
+}
+
+// accurateE returns E(lo, hi) scaled by e^{-lmax lo} by uniformisation,
+// for events whose spectral value cancels (spectral route only).
+func (e *Evaluator) accurateE(ws *work, lo, hi float64) ([]float64, error) {
+	if ws.ucache == nil {
+		ws.ucache = map[[2]float64][]float64{}
+	}
+	return shiftedE(ws.ucache, ws.emat, e.n, e.uexp, e.uint0, lo, hi)
+}
+
+// hotCancels is the exact cancellation test of the fast path's hot loop:
+// f <= spectralRelFloor * sum |terms| at the exact time tau.
+func (e *Evaluator) hotCancels(f float64, pr int, tau float64) bool {
+	s := e.sp
+	fa := math.Abs(e.hc0[pr])
+	for i, mu := range e.hmu {
+		fa += math.Abs(e.hc[pr][i] * math.Exp(mu*tau))
+	}
+	c := e.cf[pr]
+	for _, p := range s.pairs {
+		sn, cs := math.Sincos(p.b * tau)
+		fa += math.Abs(math.Exp((p.a-s.lmax)*tau) * (c[p.k]*cs + c[p.k+1]*sn))
+	}
+	return !(f > spectralRelFloor*fa)
+}
+
+// fastAccurate returns the pair factor of pair pr over [lo, hi] by
+// uniformisation, scaled like the spectral one.
+func (e *Evaluator) fastAccurate(ws *work, pr int, lo, hi float64) (float64, error) {
+	m, err := e.accurateE(ws, lo, hi)
+	if err != nil {
+		return 0, err
+	}
+	np1 := e.nl + 1
+	a, b := e.avec[pr/np1], e.bvec[pr%np1]
+	timesCol(ws.x, m, b, e.n)
+	return dot(a, ws.x), nil
+}
+
 // NewNetworkEvaluator builds the kernels of net and an Evaluator.
 func NewNetworkEvaluator(net *models.Network, opt Options) (*Evaluator, error) {
 	k, err := NewKernels(net)
@@ -229,74 +451,58 @@ func (e *Evaluator) Method() ExpMethod { return e.prop.Method() }
 func (e *Evaluator) Fast() bool { return e.fast }
 
 // startLaw computes nu, the stationary law of K = G A D (G = exp(L delta),
-// A = (-D0)^{-1}, D = sum_l D_l), and w0 = nu G A.
+// A = (-D0)^{-1}, D = sum_l D_l), and w0 = nu G A, by the same
+// subtraction-free routes as the Predictor (obsMSolve for A, the GTH
+// reduction obsStationaryDTMC for nu), so that both agree entry-wise on
+// stiff networks.
 func (e *Evaluator) startLaw() error {
 	n := e.n
-	a, err := e.negD0Inverse()
+	dsum := mat.NewDense(n, n, nil)
+	absorb := make([]float64, n)
+	for _, es := range e.dsp {
+		for _, d := range es {
+			dsum.Set(d.i, d.j, dsum.At(d.i, d.j)+d.v)
+			absorb[d.i] += d.v
+		}
+	}
+	a, err := obsMSolve(e.k.D0, absorb, obsIdentity(n))
 	if err != nil {
-		return err
+		return fmt.Errorf("likelihood: D0 is singular (some states never reach a visible transition): %w", err)
 	}
 	ga := mat.NewDense(n, n, nil)
 	if e.g != nil {
 		ga.Mul(mat.NewDense(n, n, e.g), a)
+		obsClampNeg(ga)
 	} else {
 		ga.Copy(a)
 	}
-	dsum := mat.NewDense(n, n, nil)
-	for _, es := range e.dsp {
-		for _, d := range es {
-			dsum.Set(d.i, d.j, dsum.At(d.i, d.j)+d.v)
-		}
-	}
 	kk := mat.NewDense(n, n, nil)
 	kk.Mul(ga, dsum)
-	// nu (I - K + 1 u) = u with u = 1/n: nu = stationary law of K.
-	m := mat.NewDense(n, n, nil)
-	for i := 0; i < n; i++ {
-		for j := 0; j < n; j++ {
-			v := -kk.At(i, j) + 1/float64(n)
-			if i == j {
-				v++
+	// GTH needs a recurrent first state: the target of a visible transition.
+	first := -1
+	for _, es := range e.dsp {
+		for _, d := range es {
+			if first < 0 && d.v > 0 {
+				first = d.j
 			}
-			m.Set(i, j, v)
 		}
 	}
-	u := mat.NewVecDense(n, nil)
-	for i := 0; i < n; i++ {
-		u.SetVec(i, 1/float64(n))
+	if first < 0 {
+		return errors.New("likelihood: no visible transition with a positive rate")
 	}
-	var nu mat.VecDense
-	if err := nu.SolveVec(m.T(), u); err != nil {
+	rows := make([][]float64, n)
+	for i := range rows {
+		rows[i] = mat.Row(nil, i, kk)
+	}
+	nu, err := obsStationaryDTMC(rows, first)
+	if err != nil {
 		return fmt.Errorf("likelihood: stationary post-event law: %w", err)
 	}
-	e.nu = make([]float64, n)
-	s := 0.0
-	for i := range e.nu {
-		e.nu[i] = math.Max(nu.AtVec(i), 0)
-		s += e.nu[i]
-	}
-	for i := range e.nu {
-		e.nu[i] /= s
-	}
+	e.nu = nu
 	e.w0 = make([]float64, n)
 	rowTimes(e.w0, e.nu, ga.RawMatrix().Data, n)
 	e.amat, e.kmat = a, kk
 	return nil
-}
-
-// negD0Inverse returns A = (-D0)^{-1}.
-func (e *Evaluator) negD0Inverse() (*mat.Dense, error) {
-	n := e.n
-	neg := mat.NewDense(n, n, nil)
-	neg.Scale(-1, e.k.D0)
-	var a mat.Dense
-	if err := a.Inverse(neg); err != nil {
-		var c mat.Condition
-		if !errors.As(err, &c) || float64(c) > 1e15 {
-			return nil, fmt.Errorf("likelihood: D0 is singular (some states never reach a visible transition): %w", err)
-		}
-	}
-	return &a, nil
 }
 
 // fastTables precomputes, for every (previous, next) pair, the vectors
@@ -322,6 +528,7 @@ func (e *Evaluator) fastTables() {
 		} else {
 			av = e.pi
 		}
+		e.avec = append(e.avec, av)
 		us[a] = make([]float64, n)
 		rowTimes(us[a], av, s.w, n)
 	}
@@ -334,6 +541,7 @@ func (e *Evaluator) fastTables() {
 				bv[i] = 1
 			}
 		}
+		e.bvec = append(e.bvec, bv)
 		vs[b] = make([]float64, n)
 		timesCol(vs[b], s.wi, bv, n)
 	}
@@ -365,6 +573,7 @@ func (e *Evaluator) fastTables() {
 	}
 	e.hc0 = make([]float64, len(e.cf))
 	e.hc = make([][]float64, len(e.cf))
+	e.hfloor = make([]float64, len(e.cf))
 	for p, c := range e.cf {
 		if kmax >= 0 {
 			e.hc0[p] = c[kmax]
@@ -372,6 +581,11 @@ func (e *Evaluator) fastTables() {
 		for _, k := range e.hidx {
 			e.hc[p] = append(e.hc[p], c[k])
 		}
+		m := 0.0
+		for _, v := range c {
+			m += math.Abs(v)
+		}
+		e.hfloor[p] = spectralRelFloor * m
 	}
 	e.ahat = make([][]complex128, nl+1)
 	e.bhat = make([][]complex128, nl+1)
@@ -678,6 +892,25 @@ func (e *Evaluator) interval(g float64, dead bool) (lo, hi float64, ok bool) {
 	return math.Max(lo, 0), hi, hi > 0
 }
 
+// firstInterval is interval for the first event of a stationary start
+// (time t1 after the clock origin 0, no dead time running): exact
+// timestamps give [t1, t1]; frames give [t1, t1 + F], since the record
+// starts at 0, a frame start, and t1 is the start of the frame holding
+// the event.
+func (e *Evaluator) firstInterval(t1 float64) (lo, hi float64, ok bool) {
+	if !(t1 >= 0) || math.IsInf(t1, 0) {
+		return 0, 0, false
+	}
+	return t1, t1 + e.frame, true
+}
+
+// endTime is the time under D0 of the censored end: End - t_n - delta,
+// and with frames End - t_n - F/2 - delta (t_n a frame start: the last
+// event lies in [t_n, t_n + F), taken at the frame's centre; End is exact).
+func (e *Evaluator) endTime(end, tn float64) float64 {
+	return end - tn - e.frame/2 - e.delta
+}
+
 // gapError describes an impossible or invalid gap.
 func gapError(rec *Record, k int, g float64, delta float64) error {
 	t := rec.Time[k]
@@ -711,19 +944,21 @@ type work struct {
 	cache               map[[2]float64][]float64 // dense route: interval -> matrix
 	ccache              map[[2]float64][]float64 // spectral route, frames: interval -> z, dz, shift
 	vl                  map[[2]float64][]float64 // dense route: interval -> sum a b^T / c
+	ucache              map[[2]float64][]float64 // spectral route: accurate fallback matrices
+	mag                 []float64                // scratch for colCancels
 }
 
 func (e *Evaluator) newWork(grad bool) *work {
 	n := e.n
 	f := func() []float64 { return make([]float64, n) }
-	w := &work{z: f(), dz: f(), u: f(), u0: f(), x: f(), y: f(), b: f(), v: f(),
+	w := &work{z: f(), dz: f(), u: f(), u0: f(), x: f(), y: f(), b: f(), v: f(), mag: f(),
 		alpha: f(), alpha2: f(), beta: f(),
 		ah: make([]complex128, n), bh: make([]complex128, n), zh: make([]complex128, n), dh: make([]complex128, n)}
 	if e.sp != nil && e.frame > 0 {
 		w.ccache = map[[2]float64][]float64{}
 	}
+	w.emat = mat.NewDense(n, n, nil)
 	if e.sp == nil {
-		w.emat = mat.NewDense(n, n, nil)
 		w.cache = map[[2]float64][]float64{}
 		if grad {
 			w.vl = map[[2]float64][]float64{}
@@ -762,6 +997,15 @@ func (e *Evaluator) fastSegment(ws *work, d *Data, lm *[256]int16, sg segment) e
 		for i, v := range c {
 			f += v * z[i]
 		}
+		// Exact times: |z_i| <= 1, so f > hfloor settles it cheaply.
+		flagged := false
+		if !(lo == hi && f > e.hfloor[pair]) && cancels(f, c, z) {
+			var err error
+			if f, err = e.fastAccurate(ws, pair, lo, hi); err != nil {
+				return err
+			}
+			flagged = true
+		}
 		if !(f > 0) || f > math.MaxFloat64 {
 			return impossible(rec, k, "density", f)
 		}
@@ -769,6 +1013,9 @@ func (e *Evaluator) fastSegment(ws *work, d *Data, lm *[256]int16, sg segment) e
 		if mant < prodLow || mant > prodHigh {
 			fr, xe := math.Frexp(mant)
 			mant, ex = fr, ex+xe
+		}
+		if grad && flagged {
+			return e.fastFlaggedGrad(ws, pair, f, lo, hi)
 		}
 		if grad {
 			inv := 1 / f
@@ -798,7 +1045,7 @@ func (e *Evaluator) fastSegment(ws *work, d *Data, lm *[256]int16, sg segment) e
 		}
 		if e.opt.Start == StartStationary {
 			g := tm[0]
-			lo, hi, ok := e.interval(g, false)
+			lo, hi, ok := e.firstInterval(g)
 			if !ok || math.IsNaN(g) {
 				return fmt.Errorf("likelihood: record %q event 1: time %v: a stationary start needs a finite time >= 0", rec.ID, g)
 			}
@@ -847,6 +1094,16 @@ func (e *Evaluator) fastSegment(ws *work, d *Data, lm *[256]int16, sg segment) e
 				sn, cs := math.Sincos(p.b * tau)
 				f += math.Exp((p.a-lmx)*tau) * (c[p.k]*cs + c[p.k+1]*sn)
 			}
+			// hfloor[pr] bounds spectralRelFloor * sum |terms| from above
+			// (every e^{(lambda - lmax) tau} has modulus <= 1), so a value
+			// above it is accurate; below it the exact test decides.
+			if !(f > e.hfloor[pr]) && e.hotCancels(f, pr, tau) {
+				// The eigen-sum cancelled: recompute entry-wise.
+				var err error
+				if f, err = e.fastAccurate(ws, pr, tau, tau); err != nil {
+					return err
+				}
+			}
 			if !(f > 0) || f > math.MaxFloat64 {
 				return impossible(rec, k, "density", f)
 			}
@@ -880,7 +1137,7 @@ func (e *Evaluator) fastSegment(ws *work, d *Data, lm *[256]int16, sg segment) e
 		prev = l
 	}
 	if sg.k1 == n && !math.IsNaN(rec.End) {
-		t := rec.End - tm[n-1] - e.delta
+		t := e.endTime(rec.End, tm[n-1])
 		if !(rec.End >= tm[n-1]) || math.IsInf(rec.End, 0) {
 			return fmt.Errorf("likelihood: record %q: end %v is before the last event (%v) or not finite", rec.ID, rec.End, tm[n-1])
 		}
@@ -896,6 +1153,40 @@ func (e *Evaluator) fastSegment(ws *work, d *Data, lm *[256]int16, sg segment) e
 	}
 	fr, xe := math.Frexp(mant)
 	acc.lmant += math.Log(fr) + float64(ex+xe)*math.Ln2 + shift
+	if grad {
+		return e.flushVanLoan(ws)
+	}
+	return nil
+}
+
+// fastFlaggedGrad accumulates the sensitivities of a fast-path pair factor
+// f = a E~(lo, hi) b whose eigen-sum cancelled (f from uniformisation):
+// D0 through the Van Loan blocks of the uniformisation factors, and
+// exp(L delta) or pi through y = E~ b / f, instead of the eigen sums.
+func (e *Evaluator) fastFlaggedGrad(ws *work, pr int, f, lo, hi float64) error {
+	n, np1, acc := e.n, e.nl+1, ws.acc
+	pa, pb := pr/np1, pr%np1
+	a, b := e.avec[pa], e.bvec[pb]
+	if err := e.vanLoanEvent(ws, a, b, f, lo, hi, e.accurateMat); err != nil {
+		return err
+	}
+	m, err := e.accurateE(ws, lo, hi)
+	if err != nil {
+		return err
+	}
+	y := ws.u
+	timesCol(y, m, b, n)
+	switch {
+	case pa < e.nl && e.g != nil:
+		row := acc.sg[e.to[pa]*n : e.to[pa]*n+n]
+		for j := range row {
+			row[j] += y[j] / f
+		}
+	case pa == e.nl:
+		for j := range acc.gpi {
+			acc.gpi[j] += y[j] / f
+		}
+	}
 	return nil
 }
 
@@ -923,7 +1214,7 @@ func (e *Evaluator) generalSteps(rec *Record, lm *[256]int16, nLab int) (int, fu
 		if !(rec.End >= rec.Time[n-1]) || math.IsInf(rec.End, 0) {
 			return 0, nil, fmt.Errorf("likelihood: record %q: end %v is before the last event (%v) or not finite", rec.ID, rec.End, rec.Time[n-1])
 		}
-		if rec.End-rec.Time[n-1]-e.delta > 0 {
+		if e.endTime(rec.End, rec.Time[n-1]) > 0 {
 			hasEnd = true
 			steps++
 		}
@@ -934,7 +1225,7 @@ func (e *Evaluator) generalSteps(rec *Record, lm *[256]int16, nLab int) (int, fu
 			if !hasEnd {
 				return stepInfo{}, errors.New("likelihood: internal error: step beyond the record")
 			}
-			t := rec.End - rec.Time[n-1] - e.delta
+			t := e.endTime(rec.End, rec.Time[n-1])
 			return stepInfo{k: n, lab: -1, lo: t, hi: t, useG: e.g != nil}, nil
 		}
 		l := lm[rec.Label[k]]
@@ -943,7 +1234,7 @@ func (e *Evaluator) generalSteps(rec *Record, lm *[256]int16, nLab int) (int, fu
 		}
 		if k == 0 {
 			g := rec.Time[0]
-			lo, hi, ok := e.interval(g, false)
+			lo, hi, ok := e.firstInterval(g)
 			if !ok || math.IsNaN(g) {
 				return stepInfo{}, fmt.Errorf("likelihood: record %q event 1: time %v: a stationary start needs a finite time >= 0", rec.ID, g)
 			}
@@ -1001,9 +1292,9 @@ func (e *Evaluator) coefs(ws *work, lo, hi float64, wantD bool) float64 {
 // integral over [lo, hi]. On the spectral route it leaves x W in ws.u0 and
 // the block coefficients in ws.z (and ws.dz when wantD).
 //
-// The result is scaled by e^{-shift} (spectral route: shift = lmax t, so
-// that long gaps do not underflow; dense route: shift = 0); the caller adds
-// shift to ln L.
+// The result is scaled by e^{-shift}, shift = lmax lo on the spectral
+// route and dshift lo on the dense one (lo = t for an exact time), so that
+// long gaps do not underflow; the caller adds shift to ln L.
 func (e *Evaluator) propRow(ws *work, out, x []float64, lo, hi float64, wantD bool) (shift float64, err error) {
 	n := e.n
 	if s := e.sp; s != nil {
@@ -1019,10 +1310,7 @@ func (e *Evaluator) propRow(ws *work, out, x []float64, lo, hi float64, wantD bo
 		return 0, err
 	}
 	rowTimes(out, x, m, n)
-	if lo == hi {
-		return e.dshift * lo, nil
-	}
-	return 0, nil
+	return e.dshift * lo, nil
 }
 
 // propCol sets out = E(lo, hi) b. On the spectral route it leaves
@@ -1052,28 +1340,61 @@ func (e *Evaluator) propCol(ws *work, out, b []float64, lo, hi float64, haveZ bo
 // exponentials by interval (camera-frame data repeat a few values).
 const denseCacheMax = 4096
 
-// denseE returns E(lo, hi) on the dense route, cached by exact interval:
-// for an exact time t (lo == hi) the shifted exp((D0 - dshift I) t), to
-// be multiplied by e^{dshift t}; for an interval the integral itself.
+// denseE returns E(lo, hi) on the dense route, scaled by e^{-dshift lo}
+// and cached by exact interval: for an exact time t (lo == hi) the shifted
+// exp((D0 - dshift I) t); for an interval
+//
+//	e^{-dshift lo} int_lo^hi exp(D0 s) ds = exp((D0 - dshift I) lo) I(w),
+//	I(w) = int_0^w exp(D0 u) du,  w = hi - lo,
+//
+// both factors bounded, so that a frame far out neither underflows nor
+// loses digits in the subnormal range (the caller adds dshift lo to ln L).
+// The factors are cached under (lo, lo) and (0, w), the same keys as an
+// exact time lo and a box [0, w], which have the same values.
 func (e *Evaluator) denseE(ws *work, lo, hi float64) ([]float64, error) {
+	return shiftedE(ws.cache, ws.emat, e.n, e.dprop, e.prop, lo, hi)
+}
+
+// shiftedE is denseE for a shifted propagator pexp (exp((D0 - s I) t))
+// and an unshifted one pint (int_0^w exp(D0 u) du), caching in cache.
+func shiftedE(cache map[[2]float64][]float64, emat *mat.Dense, n int, pexp, pint *Propagator, lo, hi float64) ([]float64, error) {
 	key := [2]float64{lo, hi}
-	if m, ok := ws.cache[key]; ok {
+	if m, ok := cache[key]; ok {
 		return m, nil
 	}
-	var err error
-	if lo == hi {
-		err = e.dprop.Exp(ws.emat, lo)
-	} else {
-		err = e.prop.Integral(ws.emat, lo, hi)
+	var m []float64
+	switch {
+	case lo == hi:
+		if err := pexp.Exp(emat, lo); err != nil {
+			return nil, err
+		}
+		m = append([]float64(nil), emat.RawMatrix().Data...)
+	case lo == 0:
+		if err := pint.Integral(emat, 0, hi); err != nil {
+			return nil, err
+		}
+		m = append([]float64(nil), emat.RawMatrix().Data...)
+	default:
+		m1, err := shiftedE(cache, emat, n, pexp, pint, lo, lo)
+		if err != nil {
+			return nil, err
+		}
+		m2, err := shiftedE(cache, emat, n, pexp, pint, 0, hi-lo)
+		if err != nil {
+			return nil, err
+		}
+		m = make([]float64, n*n)
+		for i := 0; i < n; i++ {
+			rowTimes(m[i*n:i*n+n], m1[i*n:i*n+n], m2, n)
+		}
 	}
-	if err != nil {
-		return nil, err
+	if !allFinite(m) {
+		return nil, fmt.Errorf("likelihood: exponential over [%v, %v] is not finite", lo, hi)
 	}
-	m := append([]float64(nil), ws.emat.RawMatrix().Data...)
-	if len(ws.cache) >= denseCacheMax {
-		clear(ws.cache)
+	if len(cache) >= denseCacheMax {
+		clear(cache)
 	}
-	ws.cache[key] = m
+	cache[key] = m
 	return m, nil
 }
 
@@ -1103,6 +1424,16 @@ func (e *Evaluator) applyDCol(out, b []float64, l int) {
 	for _, d := range e.dsp[l] {
 		out[d.i] += d.v * b[d.j]
 	}
+}
+
+// accurateRow sets out = x E(lo, hi) e^{-lmax lo} by uniformisation.
+func (e *Evaluator) accurateRow(ws *work, out, x []float64, lo, hi float64) error {
+	m, err := e.accurateE(ws, lo, hi)
+	if err != nil {
+		return err
+	}
+	rowTimes(out, x, m, e.n)
+	return nil
 }
 
 func sum(v []float64) float64 {
@@ -1168,6 +1499,11 @@ func (e *Evaluator) generalRecord(ws *work, d *Data, lm *[256]int16, r int) erro
 		shift, err := e.propRow(ws, tmp, x, st.lo, st.hi, false)
 		if err != nil {
 			return err
+		}
+		if e.sp != nil && e.rowCancels(tmp, ws.u, x, st.lab) {
+			if err := e.accurateRow(ws, tmp, x, st.lo, st.hi); err != nil {
+				return err
+			}
 		}
 		e.applyDRow(alpha, tmp, st.lab)
 		c := sum(alpha)

@@ -286,16 +286,31 @@ func TestBadInput(t *testing.T) {
 
 // TestStiffRoutes: on stiff networks (rates over 5 decades) ln L by the
 // automatic route (spectral where its conditioning allows, else Pade),
-// by Pade and by uniformisation agree to 1e-9 relative: three independent
-// exponentials inside the same recursion; 1e-9 allows cond(V) up to the
-// automatic rule's 1e6 times eps times the number of events.
+// by Pade and by uniformisation agree: three independent exponentials
+// inside the same recursion. Summed ln L to 1e-9 relative to |ln L|: a
+// per-event error of cond(V) eps, with cond(V) at the automatic rule's
+// limit 1e6, summed over the 300 events gives 1e6 * 2.2e-16 * 300 =
+// 6.7e-8 absolute, i.e. <= 1.3e-10 relative for |ln L| >= 500 (the four
+// networks have |ln L| = 547..1529, cond(V) = 3..13). Per event (each gap
+// as its own two-event record, so one route cannot hide another's error
+// in the sum): ln psi to 1e-9 absolute; observed at most 1.2e-11, and
+// for these cond(V) <= 13 the expected per-event error is ~cond eps
+// (sum |terms| / psi), below 1e-12 unless a sum cancels, which the
+// spectral route's fallback then recomputes entry-wise.
 func TestStiffRoutes(t *testing.T) {
 	rng := rand.New(rand.NewPCG(40, 41))
 	for i := 0; i < 4; i++ {
 		net := coreRandomNet(rng, 4+i%2, 1+i%2, 5, 0.9)
 		d := coreSimulate(t, net, uint64(50+i), 2, 150, 0)
+		pairs := &Data{Labels: d.Labels}
+		for _, r := range d.Records {
+			for k := 1; k < len(r.Time); k++ {
+				pairs.Records = append(pairs.Records, Record{ID: r.ID + ":" + strconv.Itoa(k+1), Time: []float64{r.Time[k-1], r.Time[k]}, Label: []uint8{r.Label[k-1], r.Label[k]}, End: math.NaN()})
+			}
+		}
 		var vals []float64
 		var routes []ExpMethod
+		var per [][]float64
 		for _, m := range []ExpMethod{ExpAuto, ExpPade, ExpUniform} {
 			ev, err := NewNetworkEvaluator(net, Options{Method: m})
 			if err != nil {
@@ -305,6 +320,11 @@ func TestStiffRoutes(t *testing.T) {
 			if err != nil {
 				t.Fatalf("net %d, %v: %v", i, m, err)
 			}
+			pe, err := ev.RecordLogLiks(pairs)
+			if err != nil {
+				t.Fatalf("net %d, %v: %v", i, m, err)
+			}
+			per = append(per, pe)
 			vals = append(vals, ll)
 			routes = append(routes, ev.Method())
 			if m == ExpAuto {
@@ -315,6 +335,11 @@ func TestStiffRoutes(t *testing.T) {
 		for j := 1; j < len(vals); j++ {
 			if coreRelErr(vals[j], vals[0], 1) > 1e-9 {
 				t.Errorf("net %d: ln L by %v = %.15g, by %v = %.15g", i, routes[j], vals[j], routes[0], vals[0])
+			}
+			for k := range per[0] {
+				if math.Abs(per[j][k]-per[0][k]) > 1e-9 {
+					t.Errorf("net %d gap %s: ln psi by %v = %.15g, by %v = %.15g", i, pairs.Records[k].ID, routes[j], per[j][k], routes[0], per[0][k])
+				}
 			}
 		}
 	}

@@ -106,9 +106,9 @@ func NewPredictor(k *Kernels, in Instrument) (*Predictor, error) {
 	// E = exp(L delta).
 	p.e = obsIdentity(n)
 	if p.delta > 0 {
-		var ld mat.Dense
-		ld.Scale(p.delta, k.L)
-		p.e.Exp(&ld)
+		if err := expScaled(p.e, k.L, p.delta); err != nil {
+			return nil, fmt.Errorf("likelihood: predictor: %w", err)
+		}
 		obsClampNeg(p.e)
 	}
 	p.ea = mat.NewDense(n, n, nil)

@@ -16,7 +16,9 @@ import (
 // with alpha_l the post-l state law (see Predictor). It integrates over t
 // to P(l2|l) and holds for labels on several edges too. A NaN time gives
 // NaN. Each value costs one matrix exponential (gonum's Pade
-// approximation). It panics if l or l2 is not a label index.
+// approximation, guarded: a time so large that D0 t overflows is computed
+// by halving and squaring, and psi there is 0 to machine precision, as
+// exp(D0 t) -> 0). It panics if l or l2 is not a label index.
 func (p *Predictor) Psi(l, l2 int, t []float64) []float64 {
 	out := make([]float64, len(t))
 	v := obsRowTimes(p.alpha[l], p.e) // alpha_l exp(L delta)
@@ -29,7 +31,7 @@ func (p *Predictor) Psi(l, l2 int, t []float64) []float64 {
 		}
 		return out
 	}
-	var a, e mat.Dense
+	var e mat.Dense
 	for i, x := range t {
 		switch {
 		case math.IsNaN(x):
@@ -40,8 +42,13 @@ func (p *Predictor) Psi(l, l2 int, t []float64) []float64 {
 		case math.IsInf(x, 1):
 			continue
 		}
-		a.Scale(x-p.delta, p.k.D0)
-		e.Exp(&a)
+		if err := expScaled(&e, p.k.D0, x-p.delta); err != nil {
+			// Only a non-finite result can fail here; exp(D0 t) of a
+			// sub-generator is bounded by 1, so this does not happen for
+			// valid kernels: report the density as not computable.
+			out[i] = math.NaN()
+			continue
+		}
 		val := obsDot(obsRowTimes(v, &e), w)
 		out[i] = math.Max(0, val)
 	}

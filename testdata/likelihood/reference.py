@@ -17,8 +17,12 @@ different implementation of the same definitions:
   * start: conditioned on the first event, alpha_1 proportional to
     nu exp(L delta) (-D0)^{-1} D_l1 with nu the stationary law of
     K = exp(L delta) (-D0)^{-1} sum_l D_l; or stationary from time 0,
-    pi exp(D0 t_1) D_l1 (no dead time before the first event);
-  * censored end: exp(L delta) exp(D0 (End - t_n - delta)) 1 when positive;
+    pi exp(D0 t_1) D_l1 (no dead time before the first event), and with
+    frames pi int_{t_1}^{t_1 + F} exp(D0 s) ds D_l1 (timestamps are frame
+    starts and the record starts at 0);
+  * censored end: exp(L delta) exp(D0 (End - t_n - F/2 - delta)) 1 when
+    positive (F = 0 without frames; End exact, the last event at the
+    centre of its frame);
   * forward recursion with the state vector rescaled to sum 1 at each step,
     ln L = sum of the logs of the scale factors.
 
@@ -274,7 +278,7 @@ def loglik(model_path, data_path, start, dead, frame, end_offset):
             t, lab = rec[k]
             if k == 0:
                 x = alpha
-                y = rowvec_mat(x, E(t, False))
+                y = rowvec_mat(x, expm(D0, t) if F == 0 else integral(D0, t, t + F))
             else:
                 g = t - rec[k - 1][0]
                 x = rowvec_mat(alpha, G)
@@ -284,7 +288,7 @@ def loglik(model_path, data_path, start, dead, frame, end_offset):
             total += s.ln()
             alpha = [v / s for v in alpha]
         if end_offset is not None:
-            tau = dec(end_offset) - delta
+            tau = dec(end_offset) - F / 2 - delta
             if tau > 0:
                 y = rowvec_mat(rowvec_mat(alpha, G), expm(D0, tau))
                 total += sum(y).ln()

@@ -9,8 +9,10 @@ E = expm(D0 (gap - delta)) for exact times, or the integral of exp(D0 s)
 over the frame box (upper-right block of expm([[D0, I], [0, 0]] w), Van Loan
 1978); start conditioned on the first event (alpha_1 proportional to
 nu exp(L delta) (-D0)^{-1} D_l1, nu stationary for the post-event chain) or
-stationary from time 0; censored end exp(L delta) expm(D0 (End - t_n -
-delta)) 1; forward recursion rescaled at each step.
+stationary from time 0 (with frames the first event's box is [t_1, t_1 + F]:
+timestamps are frame starts, the record starts at 0); censored end
+exp(L delta) expm(D0 (End - t_n - F/2 - delta)) 1 (F = 0 without frames);
+forward recursion rescaled at each step.
 
 Usage (from the repository root; Debian's python3 with python3-scipy):
 
@@ -125,15 +127,15 @@ def loglik(model, data, start, dead, frame, end_offset):
         for k in ks:
             t, lab = rec[k]
             if k == 0:
-                y = alpha @ E(t, False)
+                y = alpha @ (expm(D0 * t) if frame == 0 else box(D0, t, t + frame))
             else:
                 y = alpha @ G @ E(t - rec[k - 1][0], True)
             alpha = y @ Dl[lab]
             s = alpha.sum()
             total += np.log(s)
             alpha /= s
-        if end_offset is not None and end_offset - dead > 0:
-            total += np.log((alpha @ G @ expm(D0 * (end_offset - dead))).sum())
+        if end_offset is not None and end_offset - frame / 2 - dead > 0:
+            total += np.log((alpha @ G @ expm(D0 * (end_offset - frame / 2 - dead))).sum())
     return total
 
 
