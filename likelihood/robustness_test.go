@@ -124,6 +124,32 @@ func TestDenseFrameVeryLongGap(t *testing.T) {
 			t.Errorf("%v: ln L(900) - ln L(600) = %.15g, want lmax * 300 = %.15g", m, got, want)
 		}
 	}
+	// The reviewer's case: the equal-rate (defective) ring, automatic route
+	// (Pade), gap 600 (|lmax| lo = 1020). It must return, with the
+	// gradient of finite differences. Near the defective point ln L has
+	// derivatives growing like (k g)^m, so the usual h = 1e-3 is
+	// truncation-limited here (it gives -338.1368 against -338.13282); a
+	// Richardson difference with h = 1e-5 has truncation ~(k g h)^4 ~ 1e-8
+	// relative and rounding ~eps |ln L| / h ~ 2e-8, hence 1e-7.
+	eq := coreIrreversibleRing(3, 1.7)
+	d := coreFrameRecord([]float64{1, 600, 1})
+	opt := Options{Instrument: Instrument{Frame: 0.1}}
+	_, g, err := LogLikGrad(eq, d, opt)
+	if err != nil {
+		t.Fatal(err)
+	}
+	f := func(x float64) float64 {
+		v, err := LogLik(coreScaleRate(eq, 0, math.Exp(x)), d, opt)
+		if err != nil {
+			t.Fatal(err)
+		}
+		return v
+	}
+	cd := func(h float64) float64 { return (f(h) - f(-h)) / (2 * h) }
+	const h = 1e-5
+	if fd := (4*cd(h/2) - cd(h)) / 3; coreRelErr(g.LogRate[0], fd, 1) > 1e-7 {
+		t.Errorf("equal ring, gap 600: d lnL/d ln w[0] = %.12g, finite differences %.12g", g.LogRate[0], fd)
+	}
 }
 
 // TestExpNoHang: the routes into gonum's Dense.Exp must return on huge
