@@ -5,6 +5,8 @@ import (
 	"fmt"
 	"math"
 
+	"edgewise/models"
+
 	"gonum.org/v1/gonum/mat"
 )
 
@@ -567,43 +569,16 @@ func obsStationaryDTMC(rows [][]float64, first int) ([]float64, error) {
 			}
 		}
 	}
-	for m := k - 1; m >= 1; m-- {
-		s := 0.0
-		for j := 0; j < m; j++ {
-			s += a[m][j]
-		}
-		if !(s > 0) {
-			return nil, fmt.Errorf("no unique stationary law (state %d is closed after reduction)", perm[m])
-		}
-		for i := 0; i < m; i++ {
-			a[i][m] /= s
-		}
-		for i := 0; i < m; i++ {
-			aim := a[i][m]
-			if aim == 0 {
-				continue
-			}
-			for j := 0; j < m; j++ {
-				if j != i {
-					a[i][j] += aim * a[m][j]
-				}
-			}
-		}
+	x, bad := models.GTH(a)
+	if bad >= 0 {
+		return nil, fmt.Errorf("no unique stationary law (state %d is closed after reduction)", perm[bad])
 	}
-	x := make([]float64, k)
-	x[0] = 1
-	total := 1.0
-	for m := 1; m < k; m++ {
-		s := 0.0
-		for i := 0; i < m; i++ {
-			s += x[i] * a[i][m]
-		}
-		x[m] = s
-		total += s
+	if x == nil {
+		return nil, fmt.Errorf("no unique stationary law (normalisation failed)")
 	}
 	out := make([]float64, k)
 	for i := range x {
-		out[perm[i]] = x[i] / total
+		out[perm[i]] = x[i]
 	}
 	return out, nil
 }
