@@ -84,7 +84,7 @@ type FluctOptions struct {
 	// duration T = n * (observed time) / (number of events).
 	FixedTime bool
 	// BlockEvents is the least number of events in a bootstrap block,
-	// default 500. Blocks are whole windows of one record.
+	// default 100. Blocks are whole windows of one record.
 	BlockEvents int
 }
 
@@ -102,7 +102,7 @@ func (o *FluctOptions) defaults() error {
 		return fmt.Errorf("bootstrap replicates %d < 0", o.Boot)
 	}
 	if o.BlockEvents == 0 {
-		o.BlockEvents = 500
+		o.BlockEvents = 100
 	}
 	if o.BlockEvents < 1 {
 		return fmt.Errorf("block length %d < 1", o.BlockEvents)
@@ -116,8 +116,10 @@ const maxBlocks = 1000
 
 // minBootBlocks is the least number of blocks for a block bootstrap; with
 // fewer the z-score falls back to both standard errors taken as
-// independent (conservative, see Comparison).
-const minBootBlocks = 10
+// independent (conservative, see Comparison). With 16 blocks the
+// bootstrap z of slope - F was measured over-dispersed (|z| > 1.96 in 8%
+// of valid data sets), with 80 blocks close to nominal (5.9%).
+const minBootBlocks = 50
 
 // Fluctuation is the result of the count-stopped fluctuation test for one
 // window length n (visible transitions per window).
@@ -147,14 +149,22 @@ type Symmetry struct {
 	// Points are the log-ratios for c > 0 with N(c) > 0 and N(-c) > 0.
 	Points []RatioPoint
 	// Skipped counts the c > 0 with N(c) + N(-c) > 0 but one of the two
-	// zero: their log-ratio is infinite and they are left out of the fit.
+	// zero: their log-ratio is infinite, so they are not plotted, but they
+	// do enter the binomial fit of the slope. Used is the number of c > 0
+	// in the fit (every c with N(c) + N(-c) > 0).
 	Skipped int
-	// Slope s of the weighted least-squares line through the origin,
-	// s = sum w c y / sum w c^2 with w = 1/Var(y), SE = (sum w c^2)^(-1/2).
+	Used    int
+	// Slope s of ln[P(c)/P(-c)] = s c, fitted by binomial maximum
+	// likelihood through the origin: given the N(c) + N(-c) windows at
+	// |c|, N(c) ~ Binomial(N(c) + N(-c), 1/(1 + e^{-s c})), over every
+	// c > 0 with windows (one-sided ones included, so small counts do not
+	// bias the slope); SE from the observed information.
 	Slope Estimate
-	// Chi2 = sum w (y - s c)^2 on DF = len(Points) - 1 degrees of freedom,
-	// and its upper-tail probability LinearP: a small LinearP says the
-	// log-ratio is not linear in c.
+	// Chi2 is the binomial deviance of that fit on DF = Used - 1 degrees
+	// of freedom, and LinearP its upper-tail chi-square probability: a
+	// small LinearP says the log-ratio is not linear in c. (The deviance
+	// keeps its nominal size far better than a delta-method chi-square at
+	// the small counts of the rare sign.)
 	Chi2    float64
 	DF      int
 	LinearP float64
@@ -451,25 +461,23 @@ func fluctSymmetry(kind string, blocks []fluctBlock, offset int, dur float64, op
 		s.Windows += int(v)
 	}
 	s.Points, s.Skipped = fluctLogRatios(s.Count, offset, opt.Level)
-	slope, se := fluctFitSlope(s.Points)
+	fit := fluctFitBinomial(s.Count, offset)
+	slope, se := fit.slope, fit.se
+	s.Used = fit.used
 	z := zFor(opt.Level)
-	s.Slope = Estimate{Value: slope, SE: se, Lo: slope - z*se, Hi: slope + z*se, Method: "weighted least squares through the origin, w = 1/Var(log-ratio)"}
+	s.Slope = Estimate{Value: slope, SE: se, Lo: slope - z*se, Hi: slope + z*se, Method: "binomial maximum likelihood through the origin"}
 	if s.Skipped > 0 {
-		s.Slope.Note = fmt.Sprintf("%d values of c with a zero count on one side left out", s.Skipped)
+		s.Slope.Note = fmt.Sprintf("%d values of c have windows on one side only (infinite log-ratio, not plotted; in the fit)", s.Skipped)
 	}
-	if len(s.Points) == 0 {
+	if math.IsNaN(slope) {
 		s.Slope.Note = "no c > 0 with both N(c) and N(-c) > 0: slope undefined"
 	}
-	for _, p := range s.Points {
-		r := (p.LogRatio - slope*float64(p.C)) / p.SE
-		s.Chi2 += r * r
-	}
-	s.DF = len(s.Points) - 1
+	s.Chi2, s.DF = fit.deviance, fit.used-1
 	s.LinearP = math.NaN()
-	if s.DF > 0 {
+	if s.DF > 0 && !math.IsNaN(slope) {
 		s.LinearP = chiSquareSF(s.Chi2, s.DF)
 	}
-	var rare int64
+	var rare int64 // windows of the rarer sign, over all c (one-sided c add 0)
 	for _, pt := range s.Points {
 		rare += min(pt.Plus, pt.Minus)
 	}
@@ -515,40 +523,87 @@ func fluctLogRatios(count []int64, offset int, level float64) ([]RatioPoint, int
 	return pts, skipped
 }
 
-// fluctFitSlope is the weighted least-squares slope through the origin of the
-// points and its SE; NaN when there is no point.
-func fluctFitSlope(pts []RatioPoint) (slope, se float64) {
-	var sxy, sxx float64
-	for _, p := range pts {
-		w := 1 / (p.SE * p.SE)
-		c := float64(p.C)
-		sxy += w * c * p.LogRatio
-		sxx += w * c * c
-	}
-	if sxx == 0 {
-		return math.NaN(), math.NaN()
-	}
-	return sxy / sxx, 1 / math.Sqrt(sxx)
+// binomialFit is the result of fluctFitBinomial.
+type binomialFit struct {
+	slope, se, deviance float64
+	used                int // c > 0 with N(c) + N(-c) > 0
 }
 
-// fluctSlopeOfCounts is fluctFitSlope of a histogram, without intervals (bootstrap).
-func fluctSlopeOfCounts(count []int64, offset int) float64 {
-	var sxy, sxx float64
+// fluctFitBinomial fits ln[P(c)/P(-c)] = s c by maximum likelihood, with
+// N(c) ~ Binomial(m_c = N(c) + N(-c), p_c = 1/(1 + e^{-s c})) independent
+// over c > 0. The score g(s) = sum_c c (N(c) - m_c p_c) decreases strictly
+// in s, so its root is bracketed and found by Newton steps kept inside the
+// bracket (bisection when a step leaves it). The MLE is infinite when every
+// c has windows on one side only; slope and SE are then NaN.
+func fluctFitBinomial(count []int64, offset int) binomialFit {
+	type obs struct{ c, k, m float64 }
+	var pts []obs
+	var sk, sm, s0 float64
 	for c := 1; c <= offset; c++ {
 		k, j := count[offset+c], count[offset-c]
-		if k == 0 || j == 0 {
+		if k+j == 0 {
 			continue
 		}
-		kf, jf := float64(k), float64(j)
-		w := kf * jf / (kf + jf)
-		cf := float64(c)
-		sxy += w * cf * math.Log(kf/jf)
-		sxx += w * cf * cf
+		pts = append(pts, obs{float64(c), float64(k), float64(k + j)})
+		sk += float64(c) * float64(k)
+		sm += float64(c) * float64(k+j)
+		s0 += float64(c) * float64(j)
 	}
-	if sxx == 0 {
-		return math.NaN()
+	fit := binomialFit{slope: math.NaN(), se: math.NaN(), deviance: math.NaN(), used: len(pts)}
+	if len(pts) == 0 || sk == sm || s0 == sm {
+		return fit
 	}
-	return sxy / sxx
+	score := func(s float64) (g, h float64) {
+		for _, p := range pts {
+			pr := 1 / (1 + math.Exp(-s*p.c))
+			g += p.c * (p.k - p.m*pr)
+			h += p.c * p.c * p.m * pr * (1 - pr)
+		}
+		return g, h
+	}
+	lo, hi := -1.0, 1.0
+	for g, _ := score(lo); g < 0; g, _ = score(lo) {
+		lo *= 2
+	}
+	for g, _ := score(hi); g > 0; g, _ = score(hi) {
+		hi *= 2
+	}
+	s := (lo + hi) / 2
+	for it := 0; it < 200 && hi-lo > 1e-14*math.Max(1, math.Abs(s)); it++ {
+		g, h := score(s)
+		if g > 0 {
+			lo = s
+		} else {
+			hi = s
+		}
+		next := s + g/h
+		if !(next > lo && next < hi) || h == 0 {
+			next = (lo + hi) / 2
+		}
+		if math.Abs(next-s) < 1e-15*math.Max(1, math.Abs(s)) {
+			s = next
+			break
+		}
+		s = next
+	}
+	_, info := score(s)
+	dev := 0.0
+	for _, p := range pts {
+		pr := 1 / (1 + math.Exp(-s*p.c))
+		if p.k > 0 {
+			dev += 2 * p.k * math.Log(p.k/(p.m*pr))
+		}
+		if q := p.m - p.k; q > 0 {
+			dev += 2 * q * math.Log(q/(p.m*(1-pr)))
+		}
+	}
+	fit.slope, fit.se, fit.deviance = s, 1/math.Sqrt(info), math.Max(dev, 0)
+	return fit
+}
+
+// fluctSlopeOfCounts is the binomial slope of a histogram (bootstrap).
+func fluctSlopeOfCounts(count []int64, offset int) float64 {
+	return fluctFitBinomial(count, offset).slope
 }
 
 // minRareWindows is the least number of windows of the rarer sign, summed

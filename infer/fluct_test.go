@@ -6,6 +6,8 @@ import (
 	"testing"
 
 	"edgewise/likelihood"
+
+	"gonum.org/v1/gonum/stat"
 )
 
 // flSmallRing is a three-state ring with cycle affinity
@@ -143,7 +145,7 @@ func TestFixedTimeContrast(t *testing.T) {
 // TestLogRatioPoints: a hand-made histogram. N(1) = 30, N(-1) = 10 gives
 // y = ln 3 with SE sqrt(1/30 + 1/10) and the Clopper-Pearson interval of
 // 30/40 through the logit; N(2) = 5, N(-2) = 0 is skipped and counted;
-// c = 3 is empty and not counted. The slope through one point is y/1.
+// c = 3 is empty and not counted. The binomial fit is checked against closed forms and a golden-section search.
 func TestLogRatioPoints(t *testing.T) {
 	count := make([]int64, 7) // c = -3..3, offset 3
 	count[3+1], count[3-1], count[3+2] = 30, 10, 5
@@ -157,12 +159,40 @@ func TestLogRatioPoints(t *testing.T) {
 		math.Abs(p.Lo-math.Log(lo/(1-lo))) > 1e-12 || math.Abs(p.Hi-math.Log(hi/(1-hi))) > 1e-12 || !(p.Lo < p.LogRatio && p.LogRatio < p.Hi) {
 		t.Errorf("point %+v", p)
 	}
-	s, se := fluctFitSlope(pts)
-	if math.Abs(s-math.Log(3)) > 1e-15 || math.Abs(se-p.SE) > 1e-15 {
-		t.Errorf("slope %g +- %g", s, se)
+	// With only the two-sided point the binomial MLE is the log-ratio
+	// itself, ln 3, and its SE 1/sqrt(m p (1-p)) = sqrt(1/30 + 1/10) is the
+	// delta-method one (a closed form for one c).
+	one := append([]int64(nil), count...)
+	one[3+2] = 0
+	if f := fluctFitBinomial(one, 3); math.Abs(f.slope-math.Log(3)) > 1e-12 || math.Abs(f.se-p.SE) > 1e-12 || f.used != 1 || f.deviance > 1e-12 {
+		t.Errorf("one point: %+v, want slope ln 3, SE %g", f, p.SE)
 	}
-	if b := fluctSlopeOfCounts(count, 3); math.Abs(b-s) > 1e-15 {
-		t.Errorf("bootstrap slope %g != %g", b, s)
+	// With the one-sided c = 2 the MLE moves up; check it against a
+	// golden-section maximisation of the binomial log-likelihood (a second
+	// route), to 1e-7 (the golden-section bracket).
+	f := fluctFitBinomial(count, 3)
+	ll := func(s float64) float64 {
+		return 30*math.Log(1/(1+math.Exp(-s))) + 10*math.Log(1/(1+math.Exp(s))) + 5*math.Log(1/(1+math.Exp(-2*s)))
+	}
+	a, b := 0.0, 5.0
+	g := (math.Sqrt(5) - 1) / 2
+	for b-a > 1e-9 {
+		x1, x2 := b-g*(b-a), a+g*(b-a)
+		if ll(x1) < ll(x2) {
+			a = x1
+		} else {
+			b = x2
+		}
+	}
+	if math.Abs(f.slope-(a+b)/2) > 1e-7 || !(f.slope > math.Log(3)) || f.used != 2 {
+		t.Errorf("two points: slope %g, golden section %g (used %d)", f.slope, (a+b)/2, f.used)
+	}
+	if bs := fluctSlopeOfCounts(count, 3); bs != f.slope {
+		t.Errorf("bootstrap slope %g != %g", bs, f.slope)
+	}
+	// Every c one-sided: the MLE is infinite, reported as NaN.
+	if f := fluctFitBinomial([]int64{0, 0, 0, 0, 4, 2, 0}, 3); !math.IsNaN(f.slope) {
+		t.Errorf("one-sided histogram: slope %g, want NaN", f.slope)
 	}
 }
 
@@ -311,4 +341,51 @@ func TestFluctNoVerdictOnFewWindows(t *testing.T) {
 	if !strings.HasPrefix(res[1].PostSelected.Versus.Verdict, "no verdict") || strings.HasPrefix(res[0].PostSelected.Versus.Verdict, "no verdict") {
 		t.Errorf("want a verdict at n=5 and none at n=100: %q, %q", res[0].PostSelected.Versus.Verdict, res[1].PostSelected.Versus.Verdict)
 	}
+}
+
+// TestFluctSmallSampleCalibration: on exactly valid data (the shipped
+// ring4, post-selected windows, for which ln[P(c)/P(-c)] = F c holds
+// exactly; Polettini and Esposito, PRL 119, 240601 (2017)) with few windows
+// of the rare sign, (a) the linearity test rejects at 5% no more often than
+// 5% plus 3 binomial SE (a delta-method chi-square rejected in about 13% of
+// such sets), and (b) the binomial slope is not biased: the mean of
+// (slope - A)/SE over the sets is within 3 SE of the mean of 0 (the
+// delta-method least-squares slope averaged about -0.2). 300 sets of
+// 4 x 2000 events at n = 10; fixed seeds.
+func TestFluctSmallSampleCalibration(t *testing.T) {
+	net := recModel(t, "../testdata/ring4.toml")
+	A := recRingAffinity(t, net)
+	const sets = 300
+	rejects, n := 0, 0
+	var zs []float64
+	for i := 0; i < sets; i++ {
+		d := flSimulate(t, net, 2000, 4, uint64(1000+i))
+		res, err := FluctuationTest(d, []int{10}, FluctOptions{Seed: 1, Boot: 1})
+		if err != nil {
+			t.Fatal(err)
+		}
+		s := res[0].PostSelected
+		if math.IsNaN(s.Slope.Value) {
+			continue
+		}
+		zs = append(zs, (s.Slope.Value-A)/s.Slope.SE)
+		if !math.IsNaN(s.LinearP) {
+			n++
+			if s.LinearP < 0.05 {
+				rejects++
+			}
+		}
+	}
+	if n < sets/2 || len(zs) < sets/2 {
+		t.Fatalf("only %d linearity tests and %d slopes from %d sets", n, len(zs), sets)
+	}
+	rate := float64(rejects) / float64(n)
+	if lim := 0.05 + 3*math.Sqrt(0.05*0.95/float64(n)); rate > lim {
+		t.Errorf("linearity test rejects %.3f of valid sets at 5%% (limit %.3f)", rate, lim)
+	}
+	mean, sd := stat.MeanStdDev(zs, nil)
+	if math.Abs(mean) > 3*sd/math.Sqrt(float64(len(zs))) {
+		t.Errorf("slope biased: mean z %.3f (sd %.3f, %d sets)", mean, sd, len(zs))
+	}
+	t.Logf("linearity rejects %d/%d; slope z mean %.3f sd %.3f", rejects, n, mean, sd)
 }

@@ -79,8 +79,8 @@ type AffinityOptions struct {
 	// contiguous blocks of event pairs. The interval is then the percentile
 	// interval and SE the spread of the finite resampled values.
 	Bootstrap  int
-	Blocks     int    // blocks for the block bootstrap; 0 means 20
-	MinRecords int    // records needed to resample records; 0 means 10
+	Blocks     int    // blocks for the block bootstrap; 0 means 200
+	MinRecords int    // records needed to resample records; 0 means 50
 	Seed       uint64 // bootstrap random seed (PCG); a seed fixes the result
 }
 
@@ -127,11 +127,14 @@ func EffectiveAffinity(d *likelihood.Data, plus, minus uint8, opt ...AffinityOpt
 	if !(o.Level > 0 && o.Level < 1) {
 		o.Level = 0.95
 	}
+	// Defaults measured on simulated data (ring4, 300 sets each): 20
+	// blocks or 10 records gave 95% intervals covering only 88-93% of the
+	// time; 200 blocks covered 95%.
 	if o.Blocks <= 0 {
-		o.Blocks = 20
+		o.Blocks = 200
 	}
 	if o.MinRecords <= 0 {
-		o.MinRecords = 10
+		o.MinRecords = 50
 	}
 	units := affinityUnits(d, plus, minus, o)
 	var c affinityCounts
