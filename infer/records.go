@@ -609,6 +609,9 @@ func (p *parser) row() error {
 	// Record.
 	if p.colRecord >= 0 {
 		id := p.field(p.colRecord)
+		if len(bytes.TrimSpace(id)) == 0 {
+			return p.errAt(p.col(p.colRecord), "record", "empty record name (the file has a record column, so every row needs one)")
+		}
 		if p.cur == nil || string(id) != p.curID {
 			sid := string(id)
 			if last, ok := p.seenIDs[sid]; ok {

@@ -91,6 +91,7 @@ func TestReadErrors(t *testing.T) {
 		msg       string
 	}{
 		{"no header", "# only a comment\n", ReadOptions{}, 0, 0, "no header"},
+		{"empty record name", "record,time,label\nA,1,+\n,2,-\nB,3,+\n", ReadOptions{}, 3, 1, "empty record name"},
 		{"missing time", "label,record\n+,1\n", ReadOptions{}, 1, 0, `missing column "time"`},
 		{"missing label", "# s\ntime,record\n1,1\n", ReadOptions{}, 2, 0, `missing column "label"`},
 		{"missing state", "time,label\n1,+\n", ReadOptions{Trace: true}, 1, 0, `missing column "state"`},
