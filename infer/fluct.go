@@ -194,8 +194,11 @@ type Comparison struct {
 	Corr float64
 	// Z = Diff.Value / Diff.SE.
 	Z float64
-	// Agrees reports |Z| <= the normal quantile of the confidence level.
-	Agrees bool
+	// Agrees reports |Z| <= the normal quantile of the confidence level;
+	// it is meaningful only when Decided (a verdict was given: F finite,
+	// a slope, and enough windows of the rarer sign).
+	Agrees  bool
+	Decided bool
 	// Blocks is the number of bootstrap blocks, Failed the replicates with
 	// an undefined slope or F (dropped).
 	Blocks, Replicates, Failed int
@@ -483,7 +486,7 @@ func fluctSymmetry(kind string, blocks []fluctBlock, offset int, dur float64, op
 	}
 	s.Versus = fluctCompare(blocks, slope, se, pairs, opt, stream, offset)
 	if rare < minRareWindows && !math.IsNaN(s.Versus.Z) {
-		s.Versus.Agrees = false
+		s.Versus.Agrees, s.Versus.Decided = false, false
 		s.Versus.Verdict = fmt.Sprintf("no verdict: only %d windows of the rarer sign in the fitted pairs (need %d); use shorter windows or more data", rare, minRareWindows)
 	}
 	return s
@@ -684,6 +687,7 @@ func fluctCompare(blocks []fluctBlock, slope, seSlope float64, pairs [2][2]int64
 	cmp.Z = d / cmp.Diff.SE
 	pct := fmt.Sprintf("%g%%", 100*opt.Level)
 	cmp.Agrees = math.Abs(cmp.Z) <= zq
+	cmp.Decided = true
 	if cmp.Agrees {
 		cmp.Verdict = "slope agrees with F at " + pct
 	} else {

@@ -595,6 +595,16 @@ func (p *parser) closeRecord() error {
 	return nil
 }
 
+// isNaNOrInf reports whether b spells NaN or an infinity, which are
+// refused with their own message.
+func isNaNOrInf(b []byte) bool {
+	switch strings.ToLower(strings.TrimLeft(string(b), "+-")) {
+	case "nan", "inf", "infinity":
+		return true
+	}
+	return false
+}
+
 func (p *parser) row() error {
 	if err := p.split(); err != nil {
 		return err
@@ -638,6 +648,12 @@ func (p *parser) row() error {
 	}
 	t, ok := parseDecimal(tf) // always finite when ok
 	if !ok {
+		// Plain decimal notation only: Go's parser would also take
+		// "1_000", hexadecimal floats and "Inf" spellings, which no
+		// instrument writes and which hide a damaged file.
+		if i := bytes.IndexFunc(tf, func(r rune) bool { return !strings.ContainsRune("0123456789+-.eE", r) }); i >= 0 && !isNaNOrInf(tf) {
+			return p.errAt(p.col(p.colTime), "time", "%q is not a number in decimal notation", tf)
+		}
 		var err error
 		t, err = strconv.ParseFloat(string(tf), 64)
 		if err != nil {

@@ -91,6 +91,8 @@ func TestReadErrors(t *testing.T) {
 		msg       string
 	}{
 		{"no header", "# only a comment\n", ReadOptions{}, 0, 0, "no header"},
+		{"underscore number", "time,label\n1_000,+\n", ReadOptions{}, 2, 1, "not a number in decimal notation"},
+		{"hex float", "time,label\n0x1p-2,+\n", ReadOptions{}, 2, 1, "not a number in decimal notation"},
 		{"empty record name", "record,time,label\nA,1,+\n,2,-\nB,3,+\n", ReadOptions{}, 3, 1, "empty record name"},
 		{"missing time", "label,record\n+,1\n", ReadOptions{}, 1, 0, `missing column "time"`},
 		{"missing label", "# s\ntime,record\n1,1\n", ReadOptions{}, 2, 0, `missing column "label"`},
