@@ -443,6 +443,11 @@ func (p *parser) header() error {
 	trace := p.opt.Trace || (p.colState >= 0 && p.colLabel < 0)
 	p.rep.Trace = trace
 	missing := func(name string) error {
+		for _, c := range p.rep.Columns {
+			if strings.Contains(c, "\r") {
+				return p.errAt(0, "", "missing column %q: the file's lines end with a carriage return only (old Mac format); convert the line endings to LF or CRLF", name)
+			}
+		}
 		return p.errAt(0, "", "missing column %q (header has %s)", name, strings.Join(p.rep.Columns, ", "))
 	}
 	if p.colTime < 0 {
@@ -667,6 +672,16 @@ func (p *parser) row() error {
 			return p.errAt(p.col(p.colTime), "time", "%q is not a finite number", tf)
 		}
 	}
+	if t == 0 {
+		// A non-zero mantissa that rounds to 0 has underflowed.
+		mant := tf
+		if i := bytes.IndexAny(tf, "eE"); i >= 0 {
+			mant = tf[:i]
+		}
+		if bytes.ContainsAny(mant, "123456789") {
+			return p.errAt(p.col(p.colTime), "time", "%q underflows to 0", tf)
+		}
+	}
 	if p.haveT && t < p.lastT {
 		return p.errAt(p.col(p.colTime), "time", "%v is earlier than the previous time %v (line %d) in record %q: times must not decrease within a record", t, p.lastT, p.lastLine, p.curID)
 	}
@@ -678,6 +693,9 @@ func (p *parser) row() error {
 	lf := p.field(p.colLabel)
 	if len(lf) == 0 {
 		return p.errAt(p.col(p.colLabel), "label", "empty")
+	}
+	if i := bytes.IndexFunc(lf, func(r rune) bool { return r < 0x20 || r == 0x7f }); i >= 0 {
+		return p.errAt(p.col(p.colLabel)+i, "label", "%q contains a control character", lf)
 	}
 	if string(lf) == EndLabel {
 		if p.curLen() == 0 {

@@ -91,6 +91,9 @@ func TestReadErrors(t *testing.T) {
 		msg       string
 	}{
 		{"no header", "# only a comment\n", ReadOptions{}, 0, 0, "no header"},
+		{"underflow", "time,label\n1e-400,+\n", ReadOptions{}, 2, 1, "underflows to 0"},
+		{"control character in label", "time,label\n1,a\x00b\n", ReadOptions{}, 2, 4, "control character"},
+		{"carriage returns only", "time,label\r1,+\r2,-\r", ReadOptions{}, 1, 0, "carriage return only"},
 		{"underscore number", "time,label\n1_000,+\n", ReadOptions{}, 2, 1, "not a number in decimal notation"},
 		{"hex float", "time,label\n0x1p-2,+\n", ReadOptions{}, 2, 1, "not a number in decimal notation"},
 		{"empty record name", "record,time,label\nA,1,+\n,2,-\nB,3,+\n", ReadOptions{}, 3, 1, "empty record name"},
