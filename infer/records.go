@@ -600,6 +600,10 @@ func (p *parser) closeRecord() error {
 	return nil
 }
 
+// isControl reports a control character, which a label or state name in a
+// records file must not contain.
+func isControl(r rune) bool { return r < 0x20 || r == 0x7f }
+
 // isNaNOrInf reports whether b spells NaN or an infinity, which are
 // refused with their own message.
 func isNaNOrInf(b []byte) bool {
@@ -694,7 +698,7 @@ func (p *parser) row() error {
 	if len(lf) == 0 {
 		return p.errAt(p.col(p.colLabel), "label", "empty")
 	}
-	if i := bytes.IndexFunc(lf, func(r rune) bool { return r < 0x20 || r == 0x7f }); i >= 0 {
+	if i := bytes.IndexFunc(lf, isControl); i >= 0 {
 		return p.errAt(p.col(p.colLabel)+i, "label", "%q contains a control character", lf)
 	}
 	if string(lf) == EndLabel {
@@ -765,6 +769,9 @@ func (p *parser) traceRow(t float64) error {
 	sf := p.field(p.colState)
 	if len(sf) == 0 {
 		return p.errAt(p.col(p.colState), "state", "empty")
+	}
+	if i := bytes.IndexFunc(sf, isControl); i >= 0 {
+		return p.errAt(p.col(p.colState)+i, "state", "%q contains a control character", sf)
 	}
 	p.lastT, p.haveT, p.lastLine = t, true, p.lineNo
 	if p.stateSet && string(sf) == p.state {
