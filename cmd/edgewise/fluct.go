@@ -3,7 +3,6 @@ package main
 import (
 	"fmt"
 	"io"
-	"math"
 	"os"
 	"strconv"
 	"strings"
@@ -194,15 +193,6 @@ func parseInts(s string) ([]int, error) {
 // fg formats a number like inspect's num (5 significant digits), so that
 // the same estimate prints the same in both commands, but "-" when
 // undefined.
-func fg(x float64) string { return num(x) }
-
-func fint(e infer.Estimate) string {
-	if math.IsNaN(e.Lo) && math.IsNaN(e.Hi) {
-		return "n/a"
-	}
-	return "[" + fg(e.Lo) + ", " + fg(e.Hi) + "]"
-}
-
 func fluctKinds(r infer.Fluctuation, both bool) []infer.Symmetry {
 	var out []infer.Symmetry
 	if both {
@@ -220,7 +210,7 @@ func kindName(s infer.Symmetry) string {
 	case "count-stopped":
 		return "all windows"
 	case "fixed-time":
-		return "fixed time T = " + fg(s.Duration)
+		return "fixed time T = " + num(s.Duration)
 	}
 	return s.Kind
 }
@@ -263,10 +253,10 @@ func fluctTables(res []infer.Fluctuation, both bool, level float64) []table {
 			v := s.Versus
 			main.Rows = append(main.Rows, []string{
 				strconv.Itoa(r.N), kindName(s), strconv.Itoa(s.Windows), strconv.Itoa(s.Used), strconv.Itoa(s.Skipped),
-				fg(s.Slope.Value), fint(s.Slope), fg(r.F.Value), fint(r.F), fg(v.Diff.Value), fg(v.Diff.SE), fg(v.Z), fg(s.LinearP), rowReading(s),
+				num(s.Slope.Value), interval(s.Slope), num(r.F.Value), interval(r.F), num(v.Diff.Value), num(v.Diff.SE), num(v.Z), num(s.LinearP), rowReading(s),
 			})
 			for _, p := range s.Points {
-				pts.Rows = append(pts.Rows, []string{strconv.Itoa(r.N), kindName(s), strconv.Itoa(p.C), strconv.FormatInt(p.Plus, 10), strconv.FormatInt(p.Minus, 10), fg(p.LogRatio), "[" + fg(p.Lo) + ", " + fg(p.Hi) + "]"})
+				pts.Rows = append(pts.Rows, []string{strconv.Itoa(r.N), kindName(s), strconv.Itoa(p.C), strconv.FormatInt(p.Plus, 10), strconv.FormatInt(p.Minus, 10), num(p.LogRatio), interval(infer.Estimate{Lo: p.Lo, Hi: p.Hi})})
 			}
 		}
 	}
@@ -281,7 +271,7 @@ func boundTables(b *infer.Bounds, level float64) []table {
 		Columns: []string{"quantity", "value", "SE", pct + " interval", "method", "note"},
 	}
 	row := func(name string, e infer.Estimate) {
-		t.Rows = append(t.Rows, []string{name, fg(e.Value), fg(e.SE), fint(e), e.Method, e.Note})
+		t.Rows = append(t.Rows, []string{name, num(e.Value), num(e.SE), interval(e), e.Method, e.Note})
 	}
 	row("visible current J (1/time)", b.J)
 	row("effective affinity F (k_BT)", b.F)
@@ -292,11 +282,11 @@ func boundTables(b *infer.Bounds, level float64) []table {
 	row(fmt.Sprintf("transition bound: waiting-time part (%d ++ and %d -- gaps)", b.Gaps[0], b.Gaps[1]), b.WaitingTime)
 	row("bound: transition-based total", b.Transition)
 	v := table{
-		Title:   fmt.Sprintf("Variance of the current in windows of duration t (D fitted on t from %s to %s)", fg(b.FitFrom), fg(b.FitTo)),
+		Title:   fmt.Sprintf("Variance of the current in windows of duration t (D fitted on t from %s to %s)", num(b.FitFrom), num(b.FitTo)),
 		Columns: []string{"t", "windows", "mean c", "Var c", "Var c / 2t"},
 	}
 	for _, p := range b.Variance {
-		v.Rows = append(v.Rows, []string{fg(p.T), strconv.Itoa(p.Windows), fg(p.Mean), fg(p.Var), fg(p.Var / (2 * p.T))})
+		v.Rows = append(v.Rows, []string{num(p.T), strconv.Itoa(p.Windows), num(p.Mean), num(p.Var), num(p.Var / (2 * p.T))})
 	}
 	return []table{t, v}
 }

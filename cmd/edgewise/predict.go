@@ -197,11 +197,7 @@ func predictTables(r *report, m *models.Model, net *models.Network, k *likelihoo
 		sum.Rows = append(sum.Rows, []string{"rate of " + names[l] + " (1/time)", g(rate)})
 	}
 	sum.Rows = append(sum.Rows, []string{"mean time between events", g(p.MeanGap())})
-	pi, err := net.Stationary()
-	if err != nil {
-		return err
-	}
-	sigma := net.EntropyProduction(pi)
+	sigma := net.EntropyProduction(p.Stationary())
 	single := true
 	for _, es := range k.Edges {
 		single = single && len(es) == 1
@@ -298,27 +294,19 @@ func againstData(r *report, net *models.Network, p *likelihood.Predictor, d *lik
 		return nil
 	}
 	ct := table{Title: "Model against data (z = (data - model)/SE of the data)", Columns: []string{"quantity", "model", "data", fmt.Sprintf("%g%% interval", 100*level), "z"}}
-	P := p.Transition()
-	counts := infer.TransitionCounts(d)
-	row := func(name string, model float64, e infer.Estimate) {
-		z := (e.Value - model) / e.SE
-		ct.Rows = append(ct.Rows, []string{name, g(model), g(e.Value), "[" + g(e.Lo) + ", " + g(e.Hi) + "]", g(z)})
-	}
-	for _, l := range []int{plus, minus} {
-		var tot int
-		for _, c := range counts[l] {
-			tot += c
-		}
-		k := counts[l][l]
-		lo, hi := infer.ClopperPearson(k, tot, level)
-		ph := float64(k) / float64(tot)
-		row(fmt.Sprintf("P(%s|%s)", d.Labels[l], d.Labels[l]), P[l][l], infer.Estimate{Value: ph, SE: math.Sqrt(ph * (1 - ph) / float64(tot)), Lo: lo, Hi: hi})
-	}
-	row("effective affinity F (k_BT)", p.EffectiveAffinity(plus, minus), infer.EffectiveAffinity(d, uint8(plus), uint8(minus), infer.AffinityOptions{Level: level}))
 	sum, err := infer.Summarize(d, infer.SummaryOptions{Plus: d.Labels[plus], Minus: d.Labels[minus], Level: level})
 	if err != nil {
 		return err
 	}
+	P := p.Transition()
+	row := func(name string, model float64, e infer.Estimate) {
+		z := (e.Value - model) / e.SE
+		ct.Rows = append(ct.Rows, []string{name, g(model), g(e.Value), interval(e), g(z)})
+	}
+	for _, l := range []int{plus, minus} {
+		row(fmt.Sprintf("P(%s|%s)", d.Labels[l], d.Labels[l]), P[l][l], sum.Pooled.Next[l][l])
+	}
+	row("effective affinity F (k_BT)", p.EffectiveAffinity(plus, minus), sum.Pooled.Affinity)
 	q := make([]float64, len(d.Labels))
 	q[plus], q[minus] = 1, -1
 	J, _, err := p.Current(q)
