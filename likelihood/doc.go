@@ -235,4 +235,15 @@
 // independent). Options.Workers goroutines evaluate the items and the
 // per-item sums are added in item order, so the result is bit-identical
 // for every number of workers.
+//
+// # Files
+//
+// kernel.go builds the generator split; expm.go the three exponential
+// routes; evaluator.go builds an Evaluator (options, start law, dense
+// shift); run.go cuts the data into work items and drives an evaluation;
+// fastpath.go is the single-edge fast path (pair factors psi); general.go
+// the forward recursion on state vectors; accuracy.go the entry-wise
+// accuracy checks and the uniformisation fallback of the spectral route;
+// gradient.go the exact gradient; observables.go, countstop.go and
+// fixedtime.go the predicted observables.
 package likelihood
