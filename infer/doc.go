@@ -39,15 +39,26 @@
 // The current's diffusion coefficient D (1/time) is half the long-time
 // slope of Var c(t) ~ a + 2 D t, c(t) = n_+ - n_- over a window of duration
 // t, fitted by weighted least squares at the four longest of the window
-// durations t_max 2^-j, with a block-bootstrap interval (diffusion.go). A
-// single window length would give s^2/(2t) = D + a/(2t), biased by the
-// window's boundary offset a. Summarize and EntropyBounds share this
-// estimator, its blocks and its bootstrap stream, so both give the same D
-// and interval for the same data, replicate count and seed. J and the
-// activity take their intervals from the same bootstrap. The Fano factor
-// Var c(t)/|mean c(t)| is given at one stated window length (50 events on
-// average by default), offset included; it tends to the randomness
-// parameter 2 D / |J| for windows much longer than the labels' memory.
+// durations t_max 2^-j (diffusion.go). A single window length would give
+// s^2/(2t) = D + a/(2t), biased by the window's boundary offset a.
+// Summarize and EntropyBounds share this estimator and its blocks, so both
+// give the same D and interval for the same data.
+//
+// Intervals of rates, J, the activity and D: a delete-one-block jackknife
+// over blocks of t_max (32 mean gaps or more) with a Student t quantile on
+// blocks - 1 degrees of freedom, on log scale for the positive rates and
+// D. It draws no random numbers. Measured by simulation (coverage_test.go)
+// it keeps its level where the percentile block bootstrap used before
+// covered 91-93%. With fewer than 10 blocks J and D are withheld ("too few
+// events", Estimate.Undefined) and a rate takes the exact Poisson interval
+// of Garwood (Biometrika 28, 437 (1936)), never negative and never of zero
+// width, which assumes Poisson counting and says so: the events of a
+// hidden network are not Poisson, and with many events the Garwood
+// interval of the activity covered only 84-89% on three of the shipped
+// models. The Fano factor Var c(t)/|mean c(t)| is given at one stated
+// window length (50 events on average by default), offset included; it
+// tends to the randomness parameter 2 D / |J| for windows much longer than
+// the labels' memory.
 //
 // Inter-transition times are summarised per pair (l, l'): count, mean,
 // median and coefficient of variation of the times from an l event to the
@@ -74,6 +85,25 @@
 // gap (Welch's z) between the halves of each record, and both between
 // records (G test; Cochran's Q for the means).
 //
-// All p-values are for one test at a time; the estimates assume the records
-// are stationary and come from one process.
+// # Honest at the edges
+//
+// BoundsValid (validity.go) is the one rule that says whether the
+// model-free entropy-production lower bounds (F*J, J^2/D, the
+// waiting-time bound) may be stated: not when a label may sit on several
+// edges, + and - are detected unequally, or there is a dead time, nor when
+// the data's Markov-order test rejects at MarkovWithholdLevel = 0.001;
+// otherwise with the test's p beside them. The intervals of F*J and J^2/D
+// are ranges over joint ellipses of their factors (boundinterval.go), which
+// keep their level at equilibrium, where both are 0.
+//
+// Small counts (smallcount.go): BinomialTest is the exact binomial test of
+// a count against a model's probability, AffinityTest the exact
+// likelihood-ratio test of F against a model's; both report a p-value and
+// a normal score that stays finite with zero counts.
+//
+// Every test returns its own p-value. The checks of one report form a
+// family corrected by Holm's step-down procedure (checks.go; Holm, Scand.
+// J. Stat. 6, 65 (1979)): a rejection is evidence against the check's
+// null hypothesis at the family-wise level, not a fact. The estimates
+// assume the records are stationary and come from one process.
 package infer

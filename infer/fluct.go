@@ -534,70 +534,33 @@ type binomialFit struct {
 
 // fluctFitBinomial fits ln[P(c)/P(-c)] = s c by maximum likelihood, with
 // N(c) ~ Binomial(m_c = N(c) + N(-c), p_c = 1/(1 + e^{-s c})) independent
-// over c > 0. The score g(s) = sum_c c (N(c) - m_c p_c) decreases strictly
-// in s, so its root is bracketed and found by Newton steps kept inside the
-// bracket (bisection when a step leaves it). The MLE is infinite when every
-// c has windows on one side only; slope and SE are then NaN.
+// over c > 0: likelihood.SymmetrySlope, the one definition of the slope
+// that a model's exact law gives too (CountDist.SlopeEstimand). The MLE is
+// infinite when every c has windows on one side only; slope and SE are
+// then NaN. The deviance is that of the binomial fit.
 func fluctFitBinomial(count []int64, offset int) binomialFit {
-	type obs struct{ c, k, m float64 }
-	var pts []obs
-	var sk, sm, s0 float64
+	var pts []likelihood.SlopePoint
 	for c := 1; c <= offset; c++ {
 		k, j := count[offset+c], count[offset-c]
 		if k+j == 0 {
 			continue
 		}
-		pts = append(pts, obs{float64(c), float64(k), float64(k + j)})
-		sk += float64(c) * float64(k)
-		sm += float64(c) * float64(k+j)
-		s0 += float64(c) * float64(j)
+		pts = append(pts, likelihood.SlopePoint{C: float64(c), Pos: float64(k), Neg: float64(j)})
 	}
 	fit := binomialFit{slope: math.NaN(), se: math.NaN(), deviance: math.NaN(), used: len(pts)}
-	if len(pts) == 0 || sk == sm || s0 == sm {
+	s, info, ok := likelihood.SymmetrySlope(pts)
+	if !ok {
 		return fit
 	}
-	score := func(s float64) (g, h float64) {
-		for _, p := range pts {
-			pr := 1 / (1 + math.Exp(-s*p.c))
-			g += p.c * (p.k - p.m*pr)
-			h += p.c * p.c * p.m * pr * (1 - pr)
-		}
-		return g, h
-	}
-	lo, hi := -1.0, 1.0
-	for g, _ := score(lo); g < 0; g, _ = score(lo) {
-		lo *= 2
-	}
-	for g, _ := score(hi); g > 0; g, _ = score(hi) {
-		hi *= 2
-	}
-	s := (lo + hi) / 2
-	for it := 0; it < 200 && hi-lo > 1e-14*math.Max(1, math.Abs(s)); it++ {
-		g, h := score(s)
-		if g > 0 {
-			lo = s
-		} else {
-			hi = s
-		}
-		next := s + g/h
-		if !(next > lo && next < hi) || h == 0 {
-			next = (lo + hi) / 2
-		}
-		if math.Abs(next-s) < 1e-15*math.Max(1, math.Abs(s)) {
-			s = next
-			break
-		}
-		s = next
-	}
-	_, info := score(s)
 	dev := 0.0
 	for _, p := range pts {
-		pr := 1 / (1 + math.Exp(-s*p.c))
-		if p.k > 0 {
-			dev += 2 * p.k * math.Log(p.k/(p.m*pr))
+		pr := 1 / (1 + math.Exp(-s*p.C))
+		m := p.Pos + p.Neg
+		if p.Pos > 0 {
+			dev += 2 * p.Pos * math.Log(p.Pos/(m*pr))
 		}
-		if q := p.m - p.k; q > 0 {
-			dev += 2 * q * math.Log(q/(p.m*(1-pr)))
+		if p.Neg > 0 {
+			dev += 2 * p.Neg * math.Log(p.Neg/(m*(1-pr)))
 		}
 	}
 	fit.slope, fit.se, fit.deviance = s, 1/math.Sqrt(info), math.Max(dev, 0)

@@ -12,15 +12,27 @@ import (
 // default); either may be infinite for a one-sided bound. SE is the standard
 // error when one is meaningful, else NaN. Method names how the interval was
 // made; Note explains an infinite or undefined value.
+//
+// Undefined is set when the statistic is not given at all (Value, SE, Lo
+// and Hi are NaN): the data hold too few events for it (Note then starts
+// with "too few events"), or it is not defined for these data; Note says
+// why. A renderer should print the reason, never a number.
 type Estimate struct {
 	Value, SE, Lo, Hi float64
 	Method            string
 	Note              string
+	Undefined         bool
 }
 
 func nanEstimate(method, note string) Estimate {
 	n := math.NaN()
-	return Estimate{Value: n, SE: n, Lo: n, Hi: n, Method: method, Note: note}
+	return Estimate{Value: n, SE: n, Lo: n, Hi: n, Method: method, Note: note, Undefined: true}
+}
+
+// tooFew is the Estimate of a statistic withheld for want of events; why
+// must start with "too few events".
+func tooFew(why string) Estimate {
+	return nanEstimate("", why)
 }
 
 // ClopperPearson returns the exact (Clopper-Pearson) two-sided confidence

@@ -10,21 +10,20 @@ import (
 
 // SummaryOptions tune Summarize. The zero value gives 95% intervals, labels
 // "+" and "-" as the forward and backward crossings of the visible edge,
-// delta-method intervals for F, a block bootstrap of 200 replicates (seed
-// 0) for J, the activity and D, and windows of 50 events on average for
-// the Fano factor.
+// delta-method intervals for F, delete-one-block jackknife intervals for
+// the rates, J, the activity and D (Garwood intervals for rates of few
+// events), and windows of 50 events on average for the Fano factor.
 type SummaryOptions struct {
 	Plus, Minus string  // forward and backward label names; "" means "+" and "-"
 	Level       float64 // confidence level; 0 means 0.95
 	// Bootstrap is passed to EffectiveAffinity (pooled estimate; a
 	// per-record estimate resamples blocks of its own record).
 	Bootstrap int
-	// Seed fixes every bootstrap: that of F and that of J, the activity
-	// and D (a different stream, the same as EntropyBounds uses).
+	// Seed fixes the bootstrap of F.
 	Seed uint64
-	// DiffusionBoot is the number of block-bootstrap replicates for J, the
-	// activity and D; 0 means DefaultDiffusionBoot (as BoundOptions.Boot),
-	// negative means none (then normal intervals from sqrt(2D/duration)).
+	// Deprecated: DiffusionBoot is ignored. J, the activity and D take
+	// delete-one-block jackknife intervals, which need no replicates
+	// (diffusion.go).
 	DiffusionBoot int
 	// WindowEvents is the mean number of visible events per window of the
 	// Fano factor; 0 means 50.
@@ -57,20 +56,26 @@ type Part struct {
 	Duration float64 // summed over records
 	Ends     int     // records whose end is known
 	Counts   []int   // events per label, all events
-	Rates    []Estimate
+	// Rates of each label (1/time): delete-one-block jackknife intervals
+	// on log scale (Student t), or the Garwood interval of the count
+	// (exact for Poisson counting, stated in the Note) with fewer than
+	// minJackBlocks blocks or minJackCount events (see countRate).
+	Rates []Estimate
 	// Current J = (n_+ - n_-)/duration and activity (n_+ + n_-)/duration
-	// (1/time), counted like Rates, with block-bootstrap percentile
-	// intervals (the blocks of Diffusion); with fewer than 10 blocks the SE
-	// is sqrt(2D/duration) (Var c(t) ~ 2 D t), or Poisson when D is not
-	// positive.
+	// (1/time), counted like Rates, with delete-one-block jackknife
+	// intervals over the blocks of Diffusion (J linear, the activity on
+	// log scale). With fewer than minJackBlocks blocks J is withheld (too
+	// few events) and the activity takes the Garwood interval.
 	Current, Activity Estimate
 	Pairs             [][]int      // N[l][l'] consecutive pairs
 	Next              [][]Estimate // P(l'|l) = N[l][l']/N[l][.], Clopper-Pearson interval
 	Affinity          Estimate     // F = ln[P(+|+)/P(-|-)]
 	Gaps              [][]GapStats // inter-transition times per pair (l, l')
 	// Diffusion is the current's diffusion coefficient D (1/time), half
-	// the long-time slope of Var c(t) = a + 2 D t (see diffusion.go): the
-	// same estimator, interval and seed as EntropyBounds' D.
+	// the long-time slope of Var c(t) = a + 2 D t (see diffusion.go), with
+	// a log-scale jackknife interval: the same estimator and interval as
+	// EntropyBounds' D. Withheld (too few events) without the variance
+	// curve or enough blocks.
 	Diffusion Estimate
 	// Fano is Var c(t)/|mean c(t)| at the one window length Window (time
 	// units; WindowEvents events on average) over Windows complete
@@ -109,9 +114,6 @@ func Summarize(d *likelihood.Data, opt SummaryOptions) (*Summary, error) {
 	}
 	if !(opt.WindowEvents > 0) {
 		opt.WindowEvents = 50
-	}
-	if opt.DiffusionBoot == 0 {
-		opt.DiffusionBoot = DefaultDiffusionBoot
 	}
 	s := &Summary{Labels: d.Labels, Plus: slices.Index(d.Labels, opt.Plus), Minus: slices.Index(d.Labels, opt.Minus), Level: opt.Level}
 	if opt.Plus == opt.Minus {
@@ -154,9 +156,7 @@ func (s *Summary) part(d *likelihood.Data, recs []likelihood.Record, opt Summary
 		}
 	}
 	z := zFor(opt.Level)
-	for l := 0; l < k; l++ {
-		p.Rates = append(p.Rates, poissonRate(after[l], p.Duration, z))
-	}
+	p.Rates = labelRates(recs, k, p.Duration, after, opt.Level)
 	// P(l'|l).
 	p.Next = make([][]Estimate, k)
 	for a := 0; a < k; a++ {
@@ -194,21 +194,20 @@ func (s *Summary) part(d *likelihood.Data, recs []likelihood.Record, opt Summary
 	ao := AffinityOptions{Level: opt.Level, Bootstrap: opt.Bootstrap, Seed: opt.Seed}
 	p.Affinity = EffectiveAffinity(sub, plus, minus, ao)
 	// J, activity and D: the long-time estimator shared with EntropyBounds
-	// (its sums, so that J is the same number to the last bit).
+	// (its sums, so that J is the same number to the last bit), with
+	// delete-one-block jackknife intervals.
 	cf := newCurrentFit(recs, plus, minus, true)
 	j := cf.tot.c / cf.tot.dur
 	act := cf.tot.n / cf.tot.dur
 	d0 := cf.diffusion(&cf.tot)
 	var bj, bn, bd []float64
-	cf.bootstrap(opt.DiffusionBoot, opt.Seed, func(t *boundTotals) {
+	cf.jackknife(func(t *boundTotals) {
 		bj = append(bj, t.c/t.dur)
 		bn = append(bn, t.n/t.dur)
-		if dd := cf.diffusion(t); dd > 0 {
-			bd = append(bd, dd)
-		}
+		bd = append(bd, cf.diffusion(t))
 	})
 	p.Diffusion = cf.diffusionEstimate(d0, bd, opt.Level)
-	p.Current = cf.currentEstimate(j, d0, bj, opt.Level)
+	p.Current = cf.currentEstimate(j, bj, opt.Level)
 	p.Activity = cf.activityEstimate(bn, opt.Level)
 
 	// Fano factor at one stated window length.
@@ -231,7 +230,7 @@ func (s *Summary) part(d *likelihood.Data, recs []likelihood.Record, opt Summary
 			p.Fano.Note = "the mean current per window is not resolved from zero: the Fano factor is not meaningful"
 		}
 	} else {
-		p.Fano = nanEstimate("", fmt.Sprintf("only %d complete windows of %g events: Fano factor not estimated", p.Windows, opt.WindowEvents))
+		p.Fano = tooFew(fmt.Sprintf("too few events: only %d complete windows of %g events (want 10)", p.Windows, opt.WindowEvents))
 	}
 	return p
 }
@@ -244,14 +243,65 @@ func recordDuration(r *likelihood.Record) float64 {
 	return t1 - t0
 }
 
-// poissonRate is n/t with the Poisson standard error sqrt(n)/t.
-func poissonRate(n int, t, z float64) Estimate {
-	v := float64(n) / t
-	se := math.Sqrt(math.Abs(float64(n))) / t
-	if !(t > 0) {
-		return nanEstimate("Poisson", "zero observed duration")
+// labelRates returns the rate of each of the k labels (events after each
+// record's first, counts in after, over the summed duration) with
+// countRate's interval: jackknife over blocks cut like the current's
+// (t_max = min(max(span/400, 32 mean gaps), longest record), mean gaps
+// of all events), or Garwood with few events.
+func labelRates(recs []likelihood.Record, k int, duration float64, after []int, level float64) []Estimate {
+	out := make([]Estimate, k)
+	if !(duration > 0) {
+		for l := range out {
+			out[l] = nanEstimate("", "zero observed duration")
+		}
+		return out
 	}
-	return Estimate{Value: v, SE: se, Lo: v - z*se, Hi: v + z*se, Method: "Poisson"}
+	events, longest := 0, 0.0
+	for i := range recs {
+		events += max(0, recs[i].Len()-1)
+		longest = math.Max(longest, recordDuration(&recs[i]))
+	}
+	tmax := math.Min(math.Max(duration/400, 32*duration/float64(max(events, 1))), longest)
+	type block struct {
+		dur float64
+		n   []float64
+	}
+	var blocks []block
+	for i := range recs {
+		r := &recs[i]
+		t0, t1 := fluctSpan(r)
+		nb := max(1, int(math.Ceil((t1-t0)/tmax)))
+		k0 := 1
+		for b := 0; b < nb; b++ {
+			be := math.Min(t0+float64(b+1)*tmax, t1)
+			if b == nb-1 {
+				be = t1
+			}
+			blk := block{dur: be - (t0 + float64(b)*tmax), n: make([]float64, k)}
+			k1 := len(r.Time)
+			if b < nb-1 {
+				k1 = searchAfter(r.Time, k0, len(r.Time), be)
+			}
+			for _, l := range r.Label[k0:k1] {
+				blk.n[l]++
+			}
+			k0 = k1
+			blocks = append(blocks, blk)
+		}
+	}
+	method := fmt.Sprintf("delete-one-block jackknife, %d blocks of %.4g time units, Student t on %d df, log scale", len(blocks), tmax, len(blocks)-1)
+	for l := range out {
+		n := float64(after[l])
+		var reps []float64
+		if len(blocks) >= minJackBlocks {
+			reps = make([]float64, len(blocks))
+			for i, b := range blocks {
+				reps[i] = (n - b.n[l]) / (duration - b.dur)
+			}
+		}
+		out[l] = countRate(n, duration, reps, level, method)
+	}
+	return out
 }
 
 // windowCurrents cuts each record's span (t_1, end] into complete windows

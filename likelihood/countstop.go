@@ -298,3 +298,134 @@ func obsNormalize(acc []float64, base int) CountDist {
 	}
 	return d
 }
+
+// SlopePoint is one pair of opposite currents c > 0 and -c of a
+// fluctuation plot: the probabilities (or window counts) Pos at c and Neg
+// at -c.
+type SlopePoint struct {
+	C        float64
+	Pos, Neg float64
+}
+
+// SymmetrySlope returns the binomial maximum-likelihood slope of
+// ln[P(c)/P(-c)] = s c through the origin, the one definition of the
+// fluctuation slope shared by data and models: s solves
+//
+//	g(s) = sum_c c [Pos_c - (Pos_c + Neg_c) sigma(s c)] = 0,   sigma(x) = 1/(1 + e^{-x}),
+//
+// the score of Pos_c ~ Binomial(Pos_c + Neg_c, sigma(s c)) independent
+// over c. With window counts it is the data's maximum-likelihood slope;
+// with a model's exact probabilities it is the value that slope tends to
+// as the number of windows grows (the estimand). info is
+// sum_c c^2 (Pos_c + Neg_c) sigma (1 - sigma) at the root (the observed
+// information for counts). g decreases strictly in s, so the root is
+// bracketed and found by Newton steps kept inside the bracket (bisection
+// when a step leaves it). ok is false, and s is +Inf, -Inf or NaN, when
+// every point has weight on one side only (the maximum is at infinity) or
+// there is no point.
+func SymmetrySlope(pts []SlopePoint) (s, info float64, ok bool) {
+	var sp, sn float64
+	for _, p := range pts {
+		sp += p.C * p.Pos
+		sn += p.C * p.Neg
+	}
+	switch {
+	case sp == 0 && sn == 0:
+		return math.NaN(), math.NaN(), false
+	case sn == 0:
+		return math.Inf(1), 0, false
+	case sp == 0:
+		return math.Inf(-1), 0, false
+	}
+	score := func(s float64) (g, h float64) {
+		for _, p := range pts {
+			m := p.Pos + p.Neg
+			if m == 0 {
+				continue
+			}
+			pr := 1 / (1 + math.Exp(-s*p.C))
+			g += p.C * (p.Pos - m*pr)
+			h += p.C * p.C * m * pr * (1 - pr)
+		}
+		return g, h
+	}
+	lo, hi := -1.0, 1.0
+	for g, _ := score(lo); g < 0; g, _ = score(lo) {
+		lo *= 2
+	}
+	for g, _ := score(hi); g > 0; g, _ = score(hi) {
+		hi *= 2
+	}
+	s = (lo + hi) / 2
+	for it := 0; it < 200 && hi-lo > 1e-14*math.Max(1, math.Abs(s)); it++ {
+		g, h := score(s)
+		if g > 0 {
+			lo = s
+		} else {
+			hi = s
+		}
+		next := s + g/h
+		if !(next > lo && next < hi) || h == 0 {
+			next = (lo + hi) / 2
+		}
+		if math.Abs(next-s) < 1e-15*math.Max(1, math.Abs(s)) {
+			s = next
+			break
+		}
+		s = next
+	}
+	_, info = score(s)
+	return s, info, true
+}
+
+// SlopeEstimand is a law's value of the fluctuation slope that the data
+// estimate (SymmetrySlope over the window counts), with what a test of
+// data against it needs.
+type SlopeEstimand struct {
+	// Slope is SymmetrySlope of the law's probabilities (k_BT per unit of
+	// c); +Inf, -Inf or NaN when undefined (Defined false).
+	Slope   float64
+	Defined bool
+	// ScoreVar is E[u^2] per window, u the window's contribution to the
+	// score at Slope (u = c (1 - sigma(s c)) for a window with current
+	// c > 0, -|c| sigma(s |c|) for c < 0, 0 for c = 0); over W independent
+	// windows the data's score at Slope has mean 0 and variance W ScoreVar.
+	ScoreVar float64
+	// Info is sum_{c>0} c^2 (P(c) + P(-c)) sigma (1 - sigma), the
+	// expected information per window, and SlopeVar = ScoreVar / Info^2
+	// the variance per window of the data's slope (sandwich form: it
+	// holds also where ln[P(c)/P(-c)] is not linear in c), so that the
+	// slope of W windows has standard error sqrt(SlopeVar / W).
+	Info, SlopeVar float64
+}
+
+// SlopeEstimand returns the law's value of the binomial maximum-likelihood
+// fluctuation slope (SymmetrySlope over the pairs c > 0, -c of d) with its
+// per-window score and slope variances. For the count-stopped law of
+// windows of n events (CountStopped) it is the slope the data's windows
+// of n events estimate; for the post-selected law, the post-selected
+// slope; for FixedTime, the fixed-time slope. A least-squares fit through
+// ln[P(c)/P(-c)] is a different estimand and differs from the data's slope
+// wherever ln[P(c)/P(-c)] is not linear in c.
+func (d CountDist) SlopeEstimand() SlopeEstimand {
+	var pts []SlopePoint
+	for i, c := range d.C {
+		if c <= 0 {
+			continue
+		}
+		pts = append(pts, SlopePoint{C: float64(c), Pos: d.P[i], Neg: d.Prob(-c)})
+	}
+	s, info, ok := SymmetrySlope(pts)
+	e := SlopeEstimand{Slope: s, Defined: ok, Info: info, ScoreVar: math.NaN(), SlopeVar: math.NaN()}
+	if !ok {
+		return e
+	}
+	var u2 float64
+	for _, p := range pts {
+		pr := 1 / (1 + math.Exp(-s*p.C))
+		u2 += p.C * p.C * (p.Pos*(1-pr)*(1-pr) + p.Neg*pr*pr)
+	}
+	e.ScoreVar = u2
+	e.SlopeVar = u2 / (info * info)
+	return e
+}

@@ -134,8 +134,8 @@ func TestInspectFluctSameD(t *testing.T) {
 	if strings.Join(di[1:5], "|") != strings.Join(df[1:5], "|") {
 		t.Errorf("D differs:\n inspect %q\n fluct   %q", di, df)
 	}
-	if _, err := strconv.ParseFloat(di[1], 64); err != nil || !strings.Contains(di[4], "150 replicates, seed 3") {
-		t.Errorf("D row %q: not a number or not the asked bootstrap", di)
+	if _, err := strconv.ParseFloat(di[1], 64); err != nil || !strings.Contains(di[4], "jackknife") {
+		t.Errorf("D row %q: not a number or not the jackknife interval", di)
 	}
 	ji, jf := find(ra, "current J"), find(rb, "visible current J")
 	if strings.Join(ji[1:5], "|") != strings.Join(jf[1:5], "|") {
