@@ -159,7 +159,7 @@ func AssumptionChecks(d *likelihood.Data, o CheckOptions) []Check {
 		cs = append(cs, c)
 	}
 	add("P(next|last), first against second half of each record (G test)", "P(next|last) is the same in both halves of each record", "drift within records: pooled estimates would mix different conditions", st.HalvesNext)
-	add("mean gap, first against second half of each record (sum of Welch z^2)", "the mean gap is the same in both halves of each record", "drift within records: pooled estimates would mix different conditions", st.HalvesGap)
+	add("mean gap, first against second half of each record (batch-means t, summed as z^2)", "the mean gap is the same in both halves of each record", "drift within records: pooled estimates would mix different conditions", st.HalvesGap)
 	if len(d.Records) > 1 {
 		add("P(next|last), between records (G test)", "the records share P(next|last)", "the records differ: fit them separately or test pooled against per-record fits", st.BetweenNext)
 		add("mean gap, between records (Cochran's Q)", "the records share the mean gap", "the records differ: fit them separately or test pooled against per-record fits", st.BetweenGap)

@@ -54,7 +54,7 @@
 // of Garwood (Biometrika 28, 437 (1936)), never negative and never of zero
 // width, which assumes Poisson counting and says so: the events of a
 // hidden network are not Poisson, and with many events the Garwood
-// interval of the activity covered only 84-89% on three of the shipped
+// interval of the activity covered only 83-91% on three of the shipped
 // models. The Fano factor Var c(t)/|mean c(t)| is given at one stated
 // window length (50 events on average by default), offset included; it
 // tends to the randomness parameter 2 D / |J| for windows much longer than

@@ -192,8 +192,9 @@ type Comparison struct {
 	// Corr is the bootstrap correlation of slope and F (NaN without a
 	// bootstrap).
 	Corr float64
-	// Z = Diff.Value / Diff.SE.
-	Z float64
+	// Z = Diff.Value / Diff.SE, and P its two-sided normal p-value (NaN
+	// when there is no verdict).
+	Z, P float64
 	// Agrees reports |Z| <= the normal quantile of the confidence level;
 	// it is meaningful only when Decided (a verdict was given: F finite,
 	// a slope, and enough windows of the rarer sign).
@@ -487,6 +488,7 @@ func fluctSymmetry(kind string, blocks []fluctBlock, offset int, dur float64, op
 	s.Versus = fluctCompare(blocks, slope, se, pairs, opt, stream, offset)
 	if rare < minRareWindows && !math.IsNaN(s.Versus.Z) {
 		s.Versus.Agrees, s.Versus.Decided = false, false
+		s.Versus.P = math.NaN()
 		s.Versus.Verdict = fmt.Sprintf("no verdict: only %d windows of the rarer sign in the fitted pairs (need %d); use shorter windows or more data", rare, minRareWindows)
 	}
 	return s
@@ -592,7 +594,7 @@ const maxFailedShare = 0.05
 // because the correlation is positive, so |z| is then conservative.
 func fluctCompare(blocks []fluctBlock, slope, seSlope float64, pairs [2][2]int64, opt FluctOptions, stream uint64, offset int) Comparison {
 	f, vf := fluctAffinity(pairs)
-	cmp := Comparison{Blocks: len(blocks), Corr: math.NaN()}
+	cmp := Comparison{Blocks: len(blocks), Corr: math.NaN(), P: math.NaN()}
 	d := slope - f
 	zq := zFor(opt.Level)
 	cmp.Diff = Estimate{Value: d, SE: math.NaN(), Lo: math.NaN(), Hi: math.NaN()}
@@ -648,6 +650,7 @@ func fluctCompare(blocks []fluctBlock, slope, seSlope float64, pairs [2][2]int64
 	}
 	cmp.Diff.Lo, cmp.Diff.Hi = d-zq*cmp.Diff.SE, d+zq*cmp.Diff.SE
 	cmp.Z = d / cmp.Diff.SE
+	cmp.P = normalSF2(cmp.Z)
 	pct := fmt.Sprintf("%g%%", 100*opt.Level)
 	cmp.Agrees = math.Abs(cmp.Z) <= zq
 	cmp.Decided = true
@@ -657,4 +660,33 @@ func fluctCompare(blocks []fluctBlock, slope, seSlope float64, pairs [2][2]int64
 		cmp.Verdict = fmt.Sprintf("slope differs from F at %s (z = %.2f)", pct, cmp.Z)
 	}
 	return cmp
+}
+
+// FluctChecks returns the tests of a fluctuation report as one family,
+// Holm-adjusted at the family-wise level: for each window length, the
+// post-selected slope against F (Comparison.P) and the linearity of the
+// post-selected log-ratio (the binomial deviance, LinearP). Both hold
+// when the labels form a stationary first-order Markov chain; windows of
+// all kinds and of a fixed time carry a boundary term and are not tests.
+// A comparison without a verdict enters with a NaN p (not in the family).
+func FluctChecks(res []Fluctuation, level float64) []Check {
+	var cs []Check
+	for _, r := range res {
+		v := r.PostSelected.Versus
+		c := Check{Name: fmt.Sprintf("post-selected slope against F, n = %d", r.N),
+			Null:        "the post-selected slope equals F, as for a first-order Markov label sequence",
+			Alternative: "the labels are not a first-order Markov chain (spurious events, labels on several edges, or hidden memory)",
+			Stat:        v.Z, P: v.P, N: r.PostSelected.Windows}
+		if !v.Decided {
+			c.P, c.Note = math.NaN(), v.Verdict
+		}
+		cs = append(cs, c)
+		ps := r.PostSelected
+		cs = append(cs, Check{Name: fmt.Sprintf("linearity of the post-selected ln[P(c)/P(-c)], n = %d", r.N),
+			Null:        "ln[P(c)/P(-c)] is linear in c for post-selected windows",
+			Alternative: "the labels are not a first-order Markov chain",
+			Stat:        ps.Chi2, DF: ps.DF, N: ps.Windows, P: ps.LinearP})
+	}
+	AdjustChecks(cs, level)
+	return cs
 }

@@ -99,7 +99,7 @@ func garwoodRate(n int, duration, level float64) Estimate {
 // interval when there are fewer than minJackBlocks replicates or fewer
 // than minJackCount events. The visible events of a hidden network are not
 // a Poisson process (they cluster or space out), so the Garwood interval,
-// exact for Poisson counts, covered 84-98% for the activity of the shipped
+// exact for Poisson counts, covered 83-97% for the activity of the shipped
 // models, where the jackknife covered 94-96% (coverage_test.go): it is the
 // fallback for few events, and says what it assumes.
 func countRate(n, duration float64, reps []float64, level float64, method string) Estimate {

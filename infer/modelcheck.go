@@ -233,7 +233,7 @@ func AgainstModel(d *likelihood.Data, p *likelihood.Predictor, o AgainstOptions)
 					if err != nil {
 						return nil, nil, err
 					}
-					name := fmt.Sprintf("count-stopped slope, n = %d, %s", f.N, slopeKindName(s))
+					name := fmt.Sprintf("fluctuation slope, n = %d, %s", f.N, slopeKindName(s))
 					tst := SlopeTest(s, law)
 					out = append(out, Agreement{Quantity: name, Model: tst.Model, Data: s.Slope, Test: tst})
 				}

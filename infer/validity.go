@@ -21,7 +21,8 @@ import (
 // it. It is stringent on purpose: a rejection is then strong evidence that
 // the label sequence is not the first-order chain the bounds rest on
 // (labels on several edges, spurious events, hidden memory), and valid
-// data lose their bounds in at most 0.1% of data sets.
+// data lose their bounds in about 0.1% of data sets (the level of the
+// test's chi-square approximation; with few triplets it is rough).
 const MarkovWithholdLevel = 1e-3
 
 // Instrument facts the data cannot show: what the experimenter knows about

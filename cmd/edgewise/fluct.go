@@ -3,6 +3,7 @@ package main
 import (
 	"fmt"
 	"io"
+	"math"
 	"os"
 	"strconv"
 	"strings"
@@ -10,6 +11,7 @@ import (
 	"edgewise/infer"
 	"edgewise/likelihood"
 
+	"github.com/spf13/pflag"
 	"gonum.org/v1/plot"
 )
 
@@ -38,13 +40,23 @@ its z-score keeps their correlation.
 --bounds adds lower bounds on the entropy production rate: F*J, the
 thermodynamic uncertainty bound J^2/D and the transition-based waiting-time
 bound (its waiting-time part needs about 10^4 gaps of each of ++ and --).
-D is half the long-time slope of Var c(t) = a + 2 D t, with a block
-bootstrap of --boot replicates: the estimator 'inspect' uses, so the two
-print the same D for the same file, --seed and --boot. When a ++ or -- pair was never seen F is infinite and
-F*J is given as the one-sided bound the data support (F's Clopper-Pearson
-bound times J). The bounds hold when each label sits on one directed edge
-and the instrument treats both directions alike (equal detection
-probabilities, no dead time); with --multi-edge they are not claimed.
+D is half the long-time slope of Var c(t) = a + 2 D t, with a jackknife
+interval over blocks of the records: the estimator 'inspect' uses, so the
+two print the same D for the same file. The intervals of F*J and J^2/D are
+ranges over the joint confidence region of their factors, so they keep
+their level at equilibrium, where both are 0; with few ++ or -- pairs (or
+none: F infinite) F*J takes a conservative interval from F's exact bounds.
+The bounds hold when each label sits on one directed edge and the
+instrument treats both directions alike (equal detection probabilities, no
+dead time), and the labels form a first-order Markov chain: they are
+withheld, with the reason, when the data's Markov-order test rejects at
+p < 0.001, or when --multi-edge, --dead-time or unequal --detect say the
+instrument breaks them; otherwise they are given with the test's p.
+
+Tests: each post-selected slope against F and the linearity of its
+log-ratio are tests of first-order Markov labels; together they form one
+family corrected by Holm's step-down procedure (a rejection is evidence,
+at 5% family-wise, not proof).
 
 Records: CSV or TSV with columns time, label and optionally record; "-"
 reads standard input. Times are in the unit of the rates. --rename and
@@ -73,7 +85,7 @@ func cmdFluct(args []string, stdout, stderr io.Writer) int {
 	post := fs.String("post-select", "both", "windows shown: only (post-selected) or both (all and post-selected)")
 	fixed := fs.Bool("fixed-time", false, "add windows of a fixed clock time as a contrast")
 	bounds := fs.Bool("bounds", false, "add entropy production lower bounds")
-	multi := fs.Bool("multi-edge", false, "a label may sit on several directed edges: do not claim bounds")
+	bf := addBoundFlags(fs)
 	rf := addRecordFlags(fs)
 	level := rf.level
 	boot := fs.Int("boot", infer.DefaultDiffusionBoot, "bootstrap replicates")
@@ -136,14 +148,20 @@ func cmdFluct(args []string, stdout, stderr io.Writer) int {
 		fmt.Fprintf(stderr, "edgewise: %v\n", err)
 		return 1
 	}
+	cond, err := bf.conditions()
+	if err != nil {
+		return fail(2, err)
+	}
 	edge := infer.EdgeLabels{Forward: fwd, Backward: bwd}
 	res, err := infer.FluctuationTest(d, ns, infer.FluctOptions{Labels: edge, Level: *level, Boot: *boot, Seed: *seed, FixedTime: *fixed})
 	if err != nil {
 		return fail(1, err)
 	}
 	r := &report{Tool: "edgewise " + version, Command: "fluct " + strings.Join(args, " "), Input: path, Checksum: sum, Seed: strconv.FormatUint(*seed, 10)}
-	r.Tables = append(r.Tables, fluctTables(res, *post == "both", *level)...)
+	checks := infer.FluctChecks(res, 1-*level)
+	r.Tables = append(r.Tables, fluctTables(res, checks, *post == "both", *level)...)
 	r.Notes = append(r.Notes,
+		fmt.Sprintf("tests (post-selected slope against F, linearity of the post-selected log-ratio) form one family, corrected by Holm's step-down procedure (Holm, Scand. J. Stat. 6, 65 (1979)): each p is the test's own, 'Holm p' the adjusted one; a rejection is evidence at %.3g%% family-wise, not proof", 100*(1-*level)),
 		fmt.Sprintf("%d events in %d records; windows of n consecutive events never cross records and do not overlap, so their currents are nearly independent", d.Events(), len(d.Records)),
 		"slope - F: SE from a block bootstrap over blocks of whole windows (at least 100 events) within records, since slope and F come from the same events and are correlated; with fewer than 50 blocks both SEs are added as if independent (conservative)",
 		"the test assumes stationarity; a drifting record mixes windows with different laws",
@@ -154,15 +172,15 @@ func cmdFluct(args []string, stdout, stderr io.Writer) int {
 	}
 	var bres *infer.Bounds
 	if *bounds {
-		bres, err = infer.EntropyBounds(d, infer.BoundOptions{Labels: edge, Level: *level, Boot: *boot, Seed: *seed, MultiEdge: *multi})
+		bres, err = infer.EntropyBounds(d, infer.BoundOptions{Labels: edge, Level: *level, Conditions: cond})
 		if err != nil {
 			return fail(1, err)
 		}
 		r.Tables = append(r.Tables, boundTables(bres, *level)...)
-		r.Notes = append(r.Notes, "F*J, J^2/D and the transition-based sum are lower bounds on the entropy production rate, not estimates of it; a model whose sigma lies below them beyond error is inconsistent",
-			"the bounds also need an instrument that treats both directions alike: equal detection probabilities of + and - and no dead time (either one alone can make an undriven system show F*J > 0)")
-		if !bres.Claimed {
-			r.Notes = append(r.Notes, "bounds "+bres.Reason)
+		if bres.Claimed {
+			r.Notes = append(r.Notes, "F*J, J^2/D and the transition-based sum are lower bounds on the entropy production rate, not estimates of it, given: "+strings.Join(bres.Validity.Assumes, "; ")+". A model whose sigma lies below a bound's interval is then evidence against that model, not proof")
+		} else {
+			r.Notes = append(r.Notes, "entropy-production bounds withheld: "+bres.Reason)
 		}
 		r.Notes = append(r.Notes, bres.WaitingTimeNotes...)
 	}
@@ -215,45 +233,56 @@ func kindName(s infer.Symmetry) string {
 	return s.Kind
 }
 
-// rowReading is the verdict of one row with what it means for its kind of
-// window: only post-selected windows test the labels; all windows carry a
-// boundary term and fixed-time windows are a contrast, so a difference
-// there is expected and is not a finding.
-func rowReading(s infer.Symmetry) string {
+// rowReading is the reading of one row with what it means for its kind of
+// window: only post-selected windows test the labels (c is the row's
+// check, lin its linearity check); all windows carry a boundary term and
+// fixed-time windows are a contrast, so a difference there is expected and
+// is not a finding.
+func rowReading(s infer.Symmetry, c, lin *infer.Check) string {
 	v := s.Versus.Verdict
 	if strings.HasPrefix(v, "no verdict") {
 		return v
 	}
 	switch s.Kind {
 	case "post-selected":
-		if !s.Versus.Agrees {
-			return v + ": evidence that the labels are not a first-order Markov chain (spurious events, labels on several edges, or hidden memory)"
+		out := fmt.Sprintf("no evidence against slope = F (Holm p = %s)", pval(c.Adjusted))
+		if c.Reject {
+			out = fmt.Sprintf("evidence (Holm p = %s) that the labels are not a first-order Markov chain (spurious events, labels on several edges, or hidden memory)", pval(c.Adjusted))
 		}
-		return v
+		if lin.Reject {
+			out += fmt.Sprintf("; the log-ratio is not linear in c (Holm p = %s): evidence against first-order labels", pval(lin.Adjusted))
+		}
+		return out
 	case "fixed-time":
-		return v + " (contrast, not a test: a departure that persists as n grows points to a driven cycle off the visible edge)"
+		return fmt.Sprintf("z = %.2f (contrast, not a test: a departure that persists as n grows points to a driven cycle off the visible edge)", s.Versus.Z)
 	default:
-		return v + " (not a test: all windows carry a boundary term that fades like 1/n)"
+		return fmt.Sprintf("z = %.2f (not a test: all windows carry a boundary term that fades like 1/n)", s.Versus.Z)
 	}
 }
 
-// fluctTables renders the test results.
-func fluctTables(res []infer.Fluctuation, both bool, level float64) []table {
+// fluctTables renders the test results; checks is FluctChecks(res): two
+// per window length, the slope against F and the linearity.
+func fluctTables(res []infer.Fluctuation, checks []infer.Check, both bool, level float64) []table {
 	pct := fmt.Sprintf("%g%%", 100*level)
 	main := table{
 		Title:   "Fluctuation test: slope of ln[P(c)/P(-c)] against c, set against F (k_BT)",
-		Columns: []string{"n", "windows", "how many", "c in fit", "c one-sided", "slope", pct + " interval", "F", "F " + pct, "slope - F", "SE", "z", "linearity p", "verdict"},
+		Columns: []string{"n", "windows", "how many", "c in fit", "c one-sided", "slope", pct + " interval", "F", "F " + pct, "slope - F", "SE", "z", "p", "Holm p", "linearity p", "reading"},
 	}
 	pts := table{
 		Title:   "Log-ratios per current c (exact " + pct + " intervals)",
 		Columns: []string{"n", "windows", "c", "N(c)", "N(-c)", "ln[N(c)/N(-c)]", "interval"},
 	}
-	for _, r := range res {
+	for i, r := range res {
+		c, lin := &checks[2*i], &checks[2*i+1]
 		for _, s := range fluctKinds(r, both) {
 			v := s.Versus
+			p, holm := "", ""
+			if s.Kind == "post-selected" {
+				p, holm = pval(c.P), pval(c.Adjusted)
+			}
 			main.Rows = append(main.Rows, []string{
 				strconv.Itoa(r.N), kindName(s), strconv.Itoa(s.Windows), strconv.Itoa(s.Used), strconv.Itoa(s.Skipped),
-				num(s.Slope.Value), interval(s.Slope), num(r.F.Value), interval(r.F), num(v.Diff.Value), num(v.Diff.SE), num(v.Z), num(s.LinearP), rowReading(s),
+				num(s.Slope.Value), interval(s.Slope), num(r.F.Value), interval(r.F), num(v.Diff.Value), num(v.Diff.SE), num(v.Z), p, holm, pval(s.LinearP), rowReading(s, c, lin),
 			})
 			for _, p := range s.Points {
 				pts.Rows = append(pts.Rows, []string{strconv.Itoa(r.N), kindName(s), strconv.Itoa(p.C), strconv.FormatInt(p.Plus, 10), strconv.FormatInt(p.Minus, 10), num(p.LogRatio), interval(infer.Estimate{Lo: p.Lo, Hi: p.Hi})})
@@ -261,6 +290,40 @@ func fluctTables(res []infer.Fluctuation, both bool, level float64) []table {
 		}
 	}
 	return []table{main, pts}
+}
+
+// boundFlags are the instrument facts that decide, with the data's
+// Markov-order test, whether the entropy-production bounds hold
+// (infer.BoundsValid); the data cannot show them.
+type boundFlags struct {
+	multi  *bool
+	dead   *float64
+	detect *string
+}
+
+func addBoundFlags(fs *pflag.FlagSet) boundFlags {
+	return boundFlags{
+		multi:  fs.Bool("multi-edge", false, "a label may sit on several directed edges: the entropy bounds are withheld"),
+		dead:   fs.Float64("dead-time", 0, "the instrument's dead time after each event, when known (time units): the entropy bounds are withheld"),
+		detect: fs.String("detect", "", "detection probabilities of the forward and backward labels, when known, as P+,P- (unequal ones withhold the entropy bounds)"),
+	}
+}
+
+func (b boundFlags) conditions() (infer.BoundConditions, error) {
+	c := infer.BoundConditions{MultiEdge: *b.multi, DeadTime: *b.dead}
+	if !(c.DeadTime >= 0) || math.IsInf(c.DeadTime, 0) {
+		return c, fmt.Errorf("--dead-time %v: want a finite value >= 0", c.DeadTime)
+	}
+	if *b.detect != "" {
+		a, z, ok := strings.Cut(*b.detect, ",")
+		pa, e1 := strconv.ParseFloat(strings.TrimSpace(a), 64)
+		pz, e2 := strconv.ParseFloat(strings.TrimSpace(z), 64)
+		if !ok || e1 != nil || e2 != nil || !(pa > 0 && pa <= 1) || !(pz > 0 && pz <= 1) {
+			return c, fmt.Errorf("--detect %q: want two probabilities in (0, 1] as P+,P-", *b.detect)
+		}
+		c.DetectForward, c.DetectBackward = pa, pz
+	}
+	return c, nil
 }
 
 // boundTables renders the entropy production bounds.
@@ -276,6 +339,12 @@ func boundTables(b *infer.Bounds, level float64) []table {
 	row("visible current J (1/time)", b.J)
 	row("effective affinity F (k_BT)", b.F)
 	row("diffusion coefficient D of c (1/time)", b.D)
+	m := b.Validity.Markov
+	mnote := fmt.Sprintf("the bounds are withheld below p = %g", b.Validity.Level)
+	if !b.Validity.Tested {
+		mnote = "not tested: " + m.Note
+	}
+	t.Rows = append(t.Rows, []string{"Markov-order test of the labels, p", pval(m.P), "", "", fmt.Sprintf("G = %s on %d df (%d triplets)", num(m.Stat), m.DF, m.N), mnote})
 	row("bound F*J", b.FJ)
 	row("bound J^2/D (uncertainty relation)", b.TUR)
 	row("transition bound: sequence part", b.Sequence)

@@ -40,7 +40,7 @@ func TestFluctCommand(t *testing.T) {
 		t.Fatal(err)
 	}
 	rows := rep.Tables[0].Rows
-	if len(rows) != 1 || rows[0][1] != "post-selected" || !strings.Contains(rows[0][len(rows[0])-1], "agrees") {
+	if len(rows) != 1 || rows[0][1] != "post-selected" || !strings.Contains(rows[0][len(rows[0])-1], "no evidence against slope = F") {
 		t.Errorf("rows %v", rows)
 	}
 	if rep.Seed != "1" || len(rep.Checksum) != 64 {

@@ -24,7 +24,7 @@ func TestInspectDemo(t *testing.T) {
 			t.Fatalf("%s: code %d: %s", f, code, errb.String())
 		}
 		o := out.String()
-		for _, want := range []string{"4.3739", "seed 7", "shape of ++", "second order"} {
+		for _, want := range []string{"4.3739", "seed 7", "shape of the ++ and --", "second-order Markov", "Holm p", "may be stated"} {
 			if !strings.Contains(o, want) {
 				t.Errorf("%s: %q missing", f, want)
 			}

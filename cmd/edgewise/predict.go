@@ -22,16 +22,28 @@ rates of the labels, the visible current J and its diffusion coefficient D
 (Var c(t) ~ 2 D t), the effective affinity F = ln[P(+|+)/P(-|-)] of the
 visible edge, and the exact count-stopped law: the slope of
 ln[P_n(c)/P_n(-c)] against c for windows of n visible transitions, over all
-windows and over post-selected ones (first label the reverse of the last).
+windows and over post-selected ones (first label the reverse of the last),
+and with --fixed-time over windows of n mean gaps. Each slope is the
+binomial maximum-likelihood slope that 'fluct' estimates from data,
+computed from the model's exact law: the same estimand for model and data.
+F*J and J^2/D are shown as lower bounds on sigma only where they are
+bounds: not when a label sits on several edges, the two directions are
+detected with different probabilities, or there is a dead time (and, with
+--data, not when the data's Markov-order test rejects at p < 0.001).
 Detection probabilities come from the spec; --dead-time adds an instrument
 that is blind for that time after each recorded event. Every prediction is
 made under that detection process, since missed events and a dead time
 change F while the count-stopped law still looks like a straight line.
 
 With --data, the records are set against the model: the log-likelihood
-(each record conditioned on its first event), and for P(+|+), P(-|-), F
-and J the data's estimate with its 95% interval and the z-score of the
-model's value. A model consistent with the data is not thereby true.
+(each record conditioned on its first event), and for P(+|+), P(-|-), F, J
+and each slope the data's estimate with its interval, a test of the
+model's value that stays finite and keeps its level with small counts
+(exact binomial for P(+|+) and P(-|-), exact likelihood ratio for F, the
+model's variance for J, the exact law of the score for the slopes), its
+p-value and normal score z. The tests form one family corrected by Holm's
+step-down procedure: a rejection is evidence, not proof, and a model
+consistent with the data is not thereby true.
 
 Example:
   edgewise predict testdata/ring4.toml --data testdata/ring4-demo.csv --windows 5,20
@@ -46,6 +58,7 @@ func cmdPredict(args []string, stdout, stderr io.Writer) int {
 	dead := fs.Float64("dead-time", 0, "instrument dead time after each recorded event (time units)")
 	frame := fs.Float64("frame", 0, "frame length of the records' timestamps, for the log-likelihood (time units; 0 = exact times)")
 	ns := fs.StringP("windows", "w", "5,20,100", "window lengths of the count-stopped law, comma separated")
+	fixed := fs.Bool("fixed-time", false, "add windows of a fixed clock time (n mean gaps) to the slopes")
 	rf := addRecordFlags(fs)
 	out := fs.StringP("output", "o", "-", "output file (- for standard output)")
 	force := fs.Bool("force", false, "overwrite an existing output file")
@@ -112,19 +125,26 @@ func cmdPredict(args []string, stdout, stderr io.Writer) int {
 	// order, so that label indices agree between data and model.
 	ropt.Known = k.Labels
 	r := &report{Tool: "edgewise " + version, Command: "predict " + strings.Join(args, " "), Input: path, Checksum: checksum(src)}
-	if err := predictTables(r, m, net, k, pred, in, plus, minus, windows); err != nil {
-		fmt.Fprintf(stderr, "edgewise: %v\n", err)
-		return 1
-	}
+	var d *likelihood.Data
+	var markov *infer.TestResult
 	if *data != "" {
-		d, _, sum, err := readInput(*data, os.Stdin, ropt)
+		var sum string
+		d, _, sum, err = readInput(*data, os.Stdin, ropt)
 		if err != nil {
 			fmt.Fprintf(stderr, "edgewise: %v\n", err)
 			return 1
 		}
 		r.Input += ", " + *data
 		r.Checksum += " " + sum
-		if err := againstData(r, net, pred, d, in, plus, minus, *rf.level); err != nil {
+		mo := infer.MarkovOrderTest(d)
+		markov = &mo
+	}
+	if err := predictTables(r, m, net, k, pred, in, plus, minus, windows, *fixed, markov); err != nil {
+		fmt.Fprintf(stderr, "edgewise: %v\n", err)
+		return 1
+	}
+	if d != nil {
+		if err := againstData(r, net, pred, d, in, plus, minus, windows, *fixed, *rf.level); err != nil {
 			fmt.Fprintf(stderr, "edgewise: %v\n", err)
 			return 1
 		}
@@ -176,7 +196,7 @@ func visibleEdge(p *likelihood.Predictor, names []string, spec string) (int, int
 	return -1, -1, nil
 }
 
-func predictTables(r *report, m *models.Model, net *models.Network, k *likelihood.Kernels, p *likelihood.Predictor, in likelihood.Instrument, plus, minus int, windows []int) error {
+func predictTables(r *report, m *models.Model, net *models.Network, k *likelihood.Kernels, p *likelihood.Predictor, in likelihood.Instrument, plus, minus int, windows []int, fixed bool, markov *infer.TestResult) error {
 	g := num
 	names := k.Labels
 	P := p.Transition()
@@ -217,24 +237,27 @@ func predictTables(r *report, m *models.Model, net *models.Network, k *likelihoo
 			[]string{fmt.Sprintf("effective affinity F = ln[P(%s|%s)/P(%s|%s)] (k_BT)", names[plus], names[plus], names[minus], names[minus]), g(F)},
 			[]string{"entropy production sigma of the network (k_B/time)", g(sigma)},
 		)
-		switch {
-		case !single:
-			r.Notes = append(r.Notes, "a label sits on several directed edges: F*J and J^2/D are not lower bounds on sigma here, so they are not shown")
-		case in.DeadTime > 0:
-			r.Notes = append(r.Notes, "with a dead time the recorded sequence is not time-reversal symmetric (the instrument is blind after an event, not before), so F*J and J^2/D are not lower bounds on sigma and are not shown")
-		case k.Detect[plus] != k.Detect[minus]:
-			r.Notes = append(r.Notes, fmt.Sprintf("the two directions are detected with different probabilities (%g and %g), which breaks time-reversal symmetry: F*J and J^2/D are not lower bounds on sigma and are not shown", k.Detect[plus], k.Detect[minus]))
-		default:
+		// The one rule for the bounds (infer.BoundsValid): the model's
+		// labels and instrument, and the data's Markov-order test when
+		// data are given.
+		bv := infer.BoundsValid(markov, infer.BoundConditions{MultiEdge: !single, DetectForward: k.Detect[plus], DetectBackward: k.Detect[minus], DeadTime: in.DeadTime})
+		if bv.Hold {
 			sum.Rows = append(sum.Rows,
 				[]string{"lower bound F*J (k_B/time)", g(F * J)},
 				[]string{"lower bound J^2/D (k_B/time)", g(J * J / D)})
+		} else {
+			r.Notes = append(r.Notes, "F*J and J^2/D are not lower bounds on sigma here, so they are not shown: "+bv.Reason())
 		}
 		if len(m.Affinities) > 0 {
 			r.Notes = append(r.Notes, "the spec imposes cycle affinities (see describe); F is what the visible edge shows of them")
 		}
 		qi := make([]int, len(names))
 		qi[plus], qi[minus] = 1, -1
-		cs := table{Title: "Count-stopped law: slope of ln[P_n(c)/P_n(-c)] against c (k_BT)", Columns: []string{"n", "all windows", "post-selected", "post-selected share", "F"}}
+		cols := []string{"n", "all windows", "post-selected", "post-selected share"}
+		if fixed {
+			cols = append(cols, "fixed time T", "fixed-time slope")
+		}
+		cs := table{Title: "Count-stopped law: slope of ln[P_n(c)/P_n(-c)] against c (k_BT)", Columns: append(cols, "F")}
 		for _, n := range windows {
 			all, err := p.CountStopped(n, qi, false)
 			if err != nil {
@@ -244,10 +267,19 @@ func predictTables(r *report, m *models.Model, net *models.Network, k *likelihoo
 			if err != nil {
 				return err
 			}
-			cs.Rows = append(cs.Rows, []string{strconv.Itoa(n), g(originSlope(all)), g(originSlope(post)), g(post.Weight), g(F)})
+			row := []string{strconv.Itoa(n), g(all.SlopeEstimand().Slope), g(post.SlopeEstimand().Slope), g(post.Weight)}
+			if fixed {
+				T := float64(n) * p.MeanGap()
+				ft, err := p.FixedTime(T, qi)
+				if err != nil {
+					return err
+				}
+				row = append(row, g(T), g(ft.SlopeEstimand().Slope))
+			}
+			cs.Rows = append(cs.Rows, append(row, g(F)))
 		}
 		tables = append(tables, cs)
-		r.Notes = append(r.Notes, "count-stopped slopes: least squares through the origin over every c with P_n(c) and P_n(-c) above 1e-12; post-selected windows give F exactly when the labels are first-order Markov")
+		r.Notes = append(r.Notes, "count-stopped slopes: the binomial maximum-likelihood slope of ln[P_n(c)/P_n(-c)] = s c (the estimand 'fluct' estimates from data), computed from the model's exact law; post-selected windows give F exactly when the labels are first-order Markov")
 	} else {
 		sum.Rows = append(sum.Rows, []string{"entropy production sigma of the network (k_B/time)", g(sigma)})
 		r.Notes = append(r.Notes, "no pair of labels forms one visible edge: current, F and the count-stopped law are not shown")
@@ -257,26 +289,9 @@ func predictTables(r *report, m *models.Model, net *models.Network, k *likelihoo
 	return nil
 }
 
-// originSlope fits ln[P(c)/P(-c)] = s c through the origin over the c > 0
-// whose probabilities both exceed 1e-12 (unweighted: the exact law has no
-// sampling noise), NaN when there is none.
-func originSlope(d likelihood.CountDist) float64 {
-	c, lr := d.LogRatio(1e-12)
-	var num, den float64
-	for i := range c {
-		if c[i] > 0 && !math.IsInf(lr[i], 0) && !math.IsNaN(lr[i]) {
-			num += float64(c[i]) * lr[i]
-			den += float64(c[i] * c[i])
-		}
-	}
-	if den == 0 {
-		return math.NaN()
-	}
-	return num / den
-}
-
-// againstData sets the records against the model's predictions.
-func againstData(r *report, net *models.Network, p *likelihood.Predictor, d *likelihood.Data, in likelihood.Instrument, plus, minus int, level float64) error {
+// againstData sets the records against the model's predictions
+// (infer.AgainstModel: one Holm-corrected family of tests).
+func againstData(r *report, net *models.Network, p *likelihood.Predictor, d *likelihood.Data, in likelihood.Instrument, plus, minus int, windows []int, fixed bool, level float64) error {
 	g := num
 	ll, err := likelihood.LogLik(net, d, likelihood.Options{Instrument: in})
 	if err != nil {
@@ -293,28 +308,33 @@ func againstData(r *report, net *models.Network, p *likelihood.Predictor, d *lik
 	if plus < 0 {
 		return nil
 	}
-	ct := table{Title: "Model against data (z = (data - model)/SE of the data)", Columns: []string{"quantity", "model", "data", fmt.Sprintf("%g%% interval", 100*level), "z"}}
-	sum, err := infer.Summarize(d, infer.SummaryOptions{Plus: d.Labels[plus], Minus: d.Labels[minus], Level: level})
+	rows, notes, err := infer.AgainstModel(d, p, infer.AgainstOptions{Plus: plus, Minus: minus, Windows: windows, FixedTime: fixed, Level: level})
 	if err != nil {
 		return err
 	}
-	P := p.Transition()
-	row := func(name string, model float64, e infer.Estimate) {
-		z := (e.Value - model) / e.SE
-		ct.Rows = append(ct.Rows, []string{name, g(model), g(e.Value), interval(e), g(z)})
+	pct := fmt.Sprintf("%g%%", 100*level)
+	ct := table{Title: "Model against data (one family of tests, Holm-corrected)", Columns: []string{"quantity", "model", "data", pct + " interval", "test", "p", "Holm p", "z", "reading"}}
+	for _, a := range rows {
+		reading := fmt.Sprintf("no evidence of a departure (Holm p = %s)", pval(a.Check.Adjusted))
+		switch {
+		case math.IsNaN(a.Test.P):
+			reading = "not tested: " + a.Test.Note
+		case a.Check.Reject:
+			reading = fmt.Sprintf("evidence (Holm p = %s <= %.3g) that the data depart from the model", pval(a.Check.Adjusted), 1-level)
+		}
+		if a.Test.Note != "" && !math.IsNaN(a.Test.P) {
+			reading += "; " + a.Test.Note
+		}
+		data := g(a.Data.Value)
+		if a.Data.Undefined {
+			data = "n/a"
+		}
+		ct.Rows = append(ct.Rows, []string{a.Quantity, g(a.Model), data, interval(a.Data), a.Test.Method, pval(a.Test.P), pval(a.Check.Adjusted), g(a.Test.Z), reading})
 	}
-	for _, l := range []int{plus, minus} {
-		row(fmt.Sprintf("P(%s|%s)", d.Labels[l], d.Labels[l]), P[l][l], sum.Pooled.Next[l][l])
-	}
-	row("effective affinity F (k_BT)", p.EffectiveAffinity(plus, minus), sum.Pooled.Affinity)
-	q := make([]float64, len(d.Labels))
-	q[plus], q[minus] = 1, -1
-	J, _, err := p.Current(q)
-	if err != nil {
-		return err
-	}
-	row("current J (1/time)", J, sum.Pooled.Current)
 	r.Tables = append(r.Tables, ct)
-	r.Notes = append(r.Notes, "|z| > 2 flags a disagreement at about 95% for that quantity alone; agreement on these does not make the model true")
+	r.Notes = append(r.Notes, notes...)
+	r.Notes = append(r.Notes,
+		"each test keeps its level with small counts and gives a finite z, the normal score of its two-sided p; the tests form one family corrected by Holm's step-down procedure (Holm, Scand. J. Stat. 6, 65 (1979)), so the chance that any fires when the model is right is at most "+fmt.Sprintf("%.3g%%", 100*(1-level)),
+		"agreement on these does not make the model true")
 	return nil
 }

@@ -3,6 +3,7 @@ package main
 import (
 	"bytes"
 	"encoding/json"
+	"fmt"
 	"math"
 	"os"
 	"path/filepath"
@@ -74,14 +75,23 @@ func TestPredictRing3(t *testing.T) {
 }
 
 // TestPredictAgainstData: the demo records were simulated from ring3, so
-// every z-score is small (|z| < 4), and a dead time or missed events lower
-// the predicted F below the cycle affinity (design notes, section 7).
+// every z-score is small (|z| < 4) and no check rejects after Holm, while
+// the same records set against ring4 are rejected; a dead time or missed
+// events lower the predicted F below the cycle affinity (design notes,
+// section 7).
 func TestPredictAgainstData(t *testing.T) {
-	r := predictJSON(t, "../../testdata/ring3.toml", "--data", "../../testdata/ring3-demo.csv", "--windows", "5")
-	for _, key := range []string{"P(+|+)", "P(-|-)", "effective affinity", "current J"} {
-		if z := cell(t, r, "Model against data", key, 4); math.Abs(z) > 4 {
+	r := predictJSON(t, "../../testdata/ring3.toml", "--data", "../../testdata/ring3-demo.csv", "--windows", "5", "--fixed-time")
+	for _, key := range []string{"P(+|+)", "P(-|-)", "effective affinity", "current J", "fluctuation slope, n = 5, all", "fluctuation slope, n = 5, post", "fluctuation slope, n = 5, fixed"} {
+		if z := cell(t, r, "Model against data", key, 7); math.Abs(z) > 4 {
 			t.Errorf("%s: z = %g", key, z)
 		}
+		if p := cell(t, r, "Model against data", key, 6); !(p > 0.05) {
+			t.Errorf("%s: Holm p = %g", key, p)
+		}
+	}
+	wrong := predictJSON(t, "../../testdata/ring4.toml", "--data", "../../testdata/ring3-demo.csv", "--windows", "5")
+	if z := cell(t, wrong, "Model against data", "effective affinity", 7); !(z > 10) || math.IsInf(z, 0) {
+		t.Errorf("ring3 data against ring4: z of F = %g, want large and finite", z)
 	}
 	if ll := cell(t, r, "Log-likelihood", "ln L per gap", 1); !(ll < 0) || math.IsInf(ll, 0) {
 		t.Errorf("ln L per gap %g", ll)
@@ -93,6 +103,36 @@ func TestPredictAgainstData(t *testing.T) {
 	dead := predictJSON(t, "../../testdata/ring3.toml", "--dead-time", "0.02", "--windows", "5")
 	if F := cell(t, dead, "Predicted rates", "effective affinity", 1); !(F < A-0.01) {
 		t.Errorf("dead time: F = %g, want below %g", F, A)
+	}
+}
+
+// TestPredictSmallCounts: with a handful of events, where some pairs are
+// never seen (the case of 0 of 14 '-' events followed by '-'), every z is
+// a finite number and every p lies in [0, 1].
+func TestPredictSmallCounts(t *testing.T) {
+	dir := t.TempDir()
+	small := filepath.Join(dir, "small.csv")
+	var b strings.Builder
+	b.WriteString("time,label\n")
+	labels := "++-+++-++-+++++-++-+++-++++-+++-++-++++-++-+"
+	for i, c := range labels {
+		fmt.Fprintf(&b, "%g,%c\n", 0.7*float64(i)+0.1*float64(i%3), c)
+	}
+	os.WriteFile(small, []byte(b.String()), 0o644)
+	r := predictJSON(t, "../../testdata/ring3.toml", "--data", small, "--windows", "5")
+	for _, tb := range r.Tables {
+		if !strings.HasPrefix(tb.Title, "Model against data") {
+			continue
+		}
+		for _, row := range tb.Rows {
+			z, err := strconv.ParseFloat(row[7], 64)
+			if err != nil || math.IsInf(z, 0) || math.IsNaN(z) {
+				t.Errorf("%s: z %q", row[0], row[7])
+			}
+			if p, err := strconv.ParseFloat(row[5], 64); err != nil || p < 0 || p > 1 {
+				t.Errorf("%s: p %q", row[0], row[5])
+			}
+		}
 	}
 }
 
