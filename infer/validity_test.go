@@ -193,3 +193,30 @@ func TestHolm(t *testing.T) {
 		}
 	}
 }
+
+// TestSummaryTooFewEvents: two events (issue of the reliability review:
+// rate 0 with interval [0, 0], activity interval [-9.6, 29.6]): each rate
+// and the activity take the Garwood interval of their count, never
+// negative and never of zero width (count 0 over T: [0, 3.689/T], Garwood,
+// Biometrika 28, 437 (1936)); J and D are withheld with "too few events".
+func TestSummaryTooFewEvents(t *testing.T) {
+	d := &likelihood.Data{Labels: []string{"+", "-"}, Records: []likelihood.Record{{Time: []float64{0, 1.3}, Label: []uint8{0, 1}, End: math.NaN()}}}
+	s, err := Summarize(d, SummaryOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	p := s.Pooled
+	for name, e := range map[string]Estimate{"rate(+)": p.Rates[0], "rate(-)": p.Rates[1], "activity": p.Activity} {
+		if !(e.Lo >= 0) || !(e.Hi > e.Lo) || !strings.Contains(e.Method, "Garwood") || !strings.Contains(e.Note, "Poisson") {
+			t.Errorf("%s: %+v", name, e)
+		}
+	}
+	if hi := p.Rates[0].Hi * p.Duration; math.Abs(hi-3.6888794541139354) > 1e-10 {
+		t.Errorf("count 0: upper limit %.12g, want 3.68888 (SciPy, reference-smallcount.json)", hi)
+	}
+	for name, e := range map[string]Estimate{"J": p.Current, "D": p.Diffusion, "Fano": p.Fano} {
+		if !e.Undefined || !math.IsNaN(e.Value) || !strings.HasPrefix(e.Note, "too few events") {
+			t.Errorf("%s: %+v", name, e)
+		}
+	}
+}

@@ -143,3 +143,38 @@ func TestInspectFluctSameD(t *testing.T) {
 	}
 	t.Logf("D: %q", di[1:5])
 }
+
+// TestFluctBoundsWithheld: an instrument stated to break the bounds
+// (--dead-time, unequal --detect, --multi-edge) withholds them with the
+// reason, through infer.BoundsValid; a bad --detect is a usage error.
+func TestFluctBoundsWithheld(t *testing.T) {
+	for _, flag := range [][]string{{"--dead-time", "0.05"}, {"--detect", "0.9,0.8"}, {"--multi-edge"}} {
+		var out, errb bytes.Buffer
+		args := append([]string{"fluct", demo, "--windows", "5", "--bounds", "--format", "json"}, flag...)
+		if code := run(args, &out, &errb); code != 0 {
+			t.Fatalf("%v: code %d: %s", flag, code, errb.String())
+		}
+		var rep report
+		if err := json.Unmarshal(out.Bytes(), &rep); err != nil {
+			t.Fatal(err)
+		}
+		withheld := false
+		for _, n := range rep.Notes {
+			withheld = withheld || strings.HasPrefix(n, "entropy-production bounds withheld:")
+		}
+		for _, tb := range rep.Tables {
+			for _, r := range tb.Rows {
+				if strings.HasPrefix(r[0], "bound F*J") && (r[1] != "n/a" || !strings.Contains(r[5], "withheld")) {
+					t.Errorf("%v: F*J row %q", flag, r)
+				}
+			}
+		}
+		if !withheld {
+			t.Errorf("%v: no withholding note: %q", flag, rep.Notes)
+		}
+	}
+	var out, errb bytes.Buffer
+	if code := run([]string{"fluct", demo, "--bounds", "--detect", "1.2,0.5"}, &out, &errb); code != 2 {
+		t.Errorf("bad --detect: code %d", code)
+	}
+}
