@@ -279,3 +279,21 @@ func TestParseStateRange(t *testing.T) {
 		t.Error("String")
 	}
 }
+
+// FuzzParseStateRange: an accepted range prints back to a string that
+// parses to the same range.
+func FuzzParseStateRange(f *testing.F) {
+	for _, s := range []string{"4", "3-6", " 3 - 5 ", "", "-3", "3-", "a", "9999999999999999999"} {
+		f.Add(s)
+	}
+	f.Fuzz(func(t *testing.T, s string) {
+		r, err := ParseStateRange(s)
+		if err != nil {
+			return
+		}
+		back, err := ParseStateRange(r.String())
+		if err != nil || back != r {
+			t.Fatalf("%q -> %v -> %q -> %v (%v)", s, r, r.String(), back, err)
+		}
+	})
+}
