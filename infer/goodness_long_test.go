@@ -10,6 +10,7 @@ import (
 	"testing"
 
 	"edgewise/likelihood"
+	"edgewise/models"
 )
 
 // TestGoodnessSizeLong: 400 replicates of 2000 gaps simulated from the
@@ -30,7 +31,7 @@ func TestGoodnessSizeLong(t *testing.T) {
 		if c.net == "shared" {
 			net = goodnessShared()
 		}
-		ks, ad, pu := gofSize(t, net, c.opt, 400, 2000, uint64(50000+1000*i))
+		ks, ad, pu := gofSize(t, net, nil, c.opt, 400, 2000, uint64(50000+1000*i))
 		t.Logf("%s: rejection at 5%%: KS %.4f, AD %.4f; uniformity of the KS p-values p = %.3g", c.name, ks, ad, pu)
 		for _, r := range []float64{ks, ad} {
 			if r < 0.017 || r > 0.083 {
@@ -53,22 +54,8 @@ func TestGoodnessSizeLong(t *testing.T) {
 func TestGoodnessDurbinLong(t *testing.T) {
 	ring3 := familyModel(t, FamilyOptions{Rings: StateRange{3, 3}}, "ring3")
 	truth := recRing([]float64{2, 1.5, 1}, []float64{0.5, 1, 0.7}, 1)
-	const reps = 200
-	rk, ra := 0, 0
-	for r := 0; r < reps; r++ {
-		d := goodnessData(t, truth, likelihood.Options{}, uint64(90000+r), 2000)
-		g, err := GapGoodness(gofFit(t, ring3, d), d, likelihood.Options{}, 0)
-		if err != nil {
-			t.Fatal(err)
-		}
-		if g.KSP < 0.05 {
-			rk++
-		}
-		if g.ADP < 0.05 {
-			ra++
-		}
-	}
-	ks, ad := float64(rk)/reps, float64(ra)/reps
+	fit := func(d *likelihood.Data) *models.Network { return gofFit(t, ring3, d) }
+	ks, ad, _ := gofSize(t, truth, fit, likelihood.Options{}, 200, 2000, 90000)
 	t.Logf("fitted parameters: rejection at 5%%: KS %.3f, AD %.3f (nominal 0.05)", ks, ad)
 	if ks > 0.096 || ad > 0.096 {
 		t.Errorf("rejection rates %.3f, %.3f above a nominal test's", ks, ad)

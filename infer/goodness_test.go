@@ -96,16 +96,21 @@ func gofFit(t *testing.T, m *models.Model, d *likelihood.Data) *models.Network {
 }
 
 // gofSize runs reps replicates of `events` events simulated from net (one
-// record each, seeds from seed0) through GapGoodness under net itself and
-// returns the rejection rates of both tests at 5% and the KS p-value of
-// the replicates' KS p-values against uniformity.
-func gofSize(t *testing.T, net *models.Network, opt likelihood.Options, reps, events int, seed0 uint64) (ks, ad, pUniform float64) {
+// record each, seeds from seed0) through GapGoodness, under net itself
+// when fit is nil and else under fit(data), and returns the rejection
+// rates of both tests at 5% and the KS p-value of the replicates' KS
+// p-values against uniformity.
+func gofSize(t *testing.T, net *models.Network, fit func(*likelihood.Data) *models.Network, opt likelihood.Options, reps, events int, seed0 uint64) (ks, ad, pUniform float64) {
 	t.Helper()
 	var ps []float64
 	rk, ra := 0, 0
 	for r := 0; r < reps; r++ {
 		d := goodnessData(t, net, opt, seed0+uint64(r), events)
-		g, err := GapGoodness(net, d, opt, uint64(r))
+		model := net
+		if fit != nil {
+			model = fit(d)
+		}
+		g, err := GapGoodness(model, d, opt, uint64(r))
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -177,7 +182,7 @@ func TestGoodnessSize(t *testing.T) {
 		{"shared labels, dead time", goodnessShared(), likelihood.Options{Instrument: likelihood.Instrument{DeadTime: 0.05}}},
 	}
 	for i, c := range cases {
-		ks, ad, pu := gofSize(t, c.net, c.opt, 60, 1500, uint64(1000*i+1))
+		ks, ad, pu := gofSize(t, c.net, nil, c.opt, 60, 1500, uint64(1000*i+1))
 		t.Logf("%s: rejection at 5%%: KS %.3f, AD %.3f; uniformity of the p-values p = %.3g", c.name, ks, ad, pu)
 		if ks > 0.134 || ad > 0.134 || pu < 1e-3 {
 			t.Errorf("%s: rejection rates KS %.3f AD %.3f, p-value uniformity %.3g", c.name, ks, ad, pu)

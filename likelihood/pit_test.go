@@ -194,7 +194,7 @@ func pitBrute(t *testing.T, net *models.Network, d *Data, delta, frame float64, 
 	}
 	integral := func(s float64) *mat.Dense { // int_0^s exp(D0 u) du
 		var id, m mat.Dense
-		id.Sub(eye(n), expD0(s))
+		id.Sub(obsIdentity(n), expD0(s))
 		m.Mul(&am, &id)
 		return &m
 	}
@@ -289,14 +289,6 @@ func pitBrute(t *testing.T, net *models.Network, d *Data, delta, frame float64, 
 	return out
 }
 
-func eye(n int) *mat.Dense {
-	m := mat.NewDense(n, n, nil)
-	for i := 0; i < n; i++ {
-		m.Set(i, i, 1)
-	}
-	return m
-}
-
 // TestPITBruteForce: the transforms on data whose labels sit on two edges
 // each (general path), with missed events, with and without dead time and
 // frames, against pitBrute's separate dense computation. Tolerance 1e-9
@@ -330,42 +322,21 @@ func TestPITBruteForce(t *testing.T) {
 // option (the general path's filtered law is then a unit vector).
 // Tolerance 1e-10 absolute (the same decomposition, different products).
 func TestPITFastEqualsGeneral(t *testing.T) {
-	rng := rand.New(rand.NewPCG(8, 9))
-	opts := []Options{
-		{},
-		{Instrument: Instrument{DeadTime: 0.05}},
-		{Instrument: Instrument{Frame: 0.1}},
-		{Start: StartStationary, Instrument: Instrument{DeadTime: 0.02, Frame: 0.05}},
-	}
-	for i := 0; i < 6; i++ {
-		p := 1.0
-		if i%2 == 1 {
-			p = 0.85
+	coreFastGeneralCases(t, 300, func(i, oi int, net *models.Network, opt Options, d *Data) {
+		of, og := opt, opt
+		of.Path, og.Path = PathFast, PathGeneral
+		uf := pitOf(t, net, d, of, 5)
+		ug := pitOf(t, net, d, og, 5)
+		if len(uf.U) != len(ug.U) || len(uf.U) != 600-2+2*int(opt.Start) {
+			t.Fatalf("net %d opt %d: %d and %d values", i, oi, len(uf.U), len(ug.U))
 		}
-		net := coreRandomNet(rng, 3+i%3, i%3, 2, p)
-		for oi, opt := range opts {
-			d := coreSimulate(t, net, uint64(100+i), 2, 300, opt.Instrument.DeadTime)
-			if opt.Instrument.Frame > 0 {
-				d = coreQuantise(d, opt.Instrument.Frame)
-			}
-			if oi == 3 {
-				d.Records[1].End = d.Records[1].Time[299] + 1
-			}
-			of, og := opt, opt
-			of.Path, og.Path = PathFast, PathGeneral
-			uf := pitOf(t, net, d, of, 5)
-			ug := pitOf(t, net, d, og, 5)
-			if len(uf.U) != len(ug.U) || len(uf.U) != 600-2+2*int(opt.Start) {
-				t.Fatalf("net %d opt %d: %d and %d values", i, oi, len(uf.U), len(ug.U))
-			}
-			for j := range uf.U {
-				if math.Abs(uf.U[j]-ug.U[j]) > 1e-10 {
-					t.Errorf("net %d opt %d value %d: fast %.15g, general %.15g", i, oi, j, uf.U[j], ug.U[j])
-					break
-				}
+		for j := range uf.U {
+			if math.Abs(uf.U[j]-ug.U[j]) > 1e-10 {
+				t.Errorf("net %d opt %d value %d: fast %.15g, general %.15g", i, oi, j, uf.U[j], ug.U[j])
+				break
 			}
 		}
-	}
+	})
 }
 
 // TestPITUniform: on records simulated from the model the transforms are
