@@ -148,10 +148,10 @@ func (e *Evaluator) pitSpectral(h []float64, den, t float64) float64 {
 	s := e.sp
 	f := 0.0
 	for _, r := range s.reals {
-		f -= h[r.k] * math.Expm1(r.lam*t)
+		f -= h[r.k] * expm1(r.lam*t)
 	}
 	for _, p := range s.pairs {
-		em := math.Expm1(p.a * t)
+		em := expm1(p.a * t)
 		sn, cs := math.Sincos(p.b * t)
 		omc := 1 - cs
 		if cs > 0 {
@@ -160,6 +160,16 @@ func (e *Evaluator) pitSpectral(h []float64, den, t float64) float64 {
 		f -= h[p.k]*(em*cs-omc) + h[p.k+1]*((em+1)*sn)
 	}
 	return clamp01(f / den)
+}
+
+// expm1 is e^x - 1 for x <= 0: math.Exp(x) - 1 where that loses at most
+// a few ulps (x < -1: e^x - 1 lies in (-1, -0.63], no cancellation), and
+// math.Expm1 (slower) nearer 0.
+func expm1(x float64) float64 {
+	if x < -1 {
+		return math.Exp(x) - 1
+	}
+	return math.Expm1(x)
 }
 
 func clamp01(u float64) float64 { return math.Min(1, math.Max(0, u)) }
