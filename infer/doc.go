@@ -106,4 +106,19 @@
 // J. Stat. 6, 65 (1979)): a rejection is evidence against the check's
 // null hypothesis at the family-wise level, not a fact. The estimates
 // assume the records are stationary and come from one process.
+//
+// # Candidates and goodness of fit
+//
+// Families generates candidate networks around one visible edge without
+// spec files (families.go): rings, rings with one chord, rings with a side
+// loop, linear chains, and the exhaustive enumeration of every connected
+// topology of up to 5 states that contains the visible edge, up to the
+// isomorphisms that keep the edge and its direction (enumerate.go: 1, 3,
+// 15, 95 topologies on 2..5 states). TightCoupling imposes one known
+// affinity on every cycle that crosses the visible edge forward
+// (tightcoupling.go). GapGoodness tests a model's probability integral
+// transforms of the gaps for uniformity with the one-sample
+// Kolmogorov-Smirnov and Anderson-Darling tests (goodness.go,
+// onesample.go); with parameters fitted to the same data the test is
+// conservative (see goodness.go).
 package infer

@@ -227,6 +227,21 @@
 // sigma + J ln(p_+/p_-), not sigma); missed events detected alike in both
 // directions keep F = J = 0.
 //
+// # Probability integral transform
+//
+// Evaluator.PIT gives, for every gap, the model's distribution function of
+// the gap given everything recorded before it and the label that ends it,
+// evaluated at the gap, from the same filtered law as the forward
+// recursion:
+//
+//	u = alpha G [int_0^{tau - delta} exp(D0 s) ds] D_{l'} 1 / alpha G (-D0)^{-1} D_{l'} 1,
+//
+// G = exp(L delta); for single-edge labels without dead time
+// [int_0^tau exp(D0 s) ds]_{to(l), from(l')} / [(-D0)^{-1}]_{to(l), from(l')}.
+// Under the model the u's are independent and uniform (a Rosenblatt
+// transform); with frame-limited timestamps the transform is randomised
+// within the frame's box, from a seed. See pit.go.
+//
 // # Parallelism and determinism
 //
 // The data are cut into work items by a rule that depends on the data only
@@ -244,6 +259,7 @@
 // fastpath.go is the single-edge fast path (pair factors psi); general.go
 // the forward recursion on state vectors; accuracy.go the entry-wise
 // accuracy checks and the uniformisation fallback of the spectral route;
-// gradient.go the exact gradient; observables.go, countstop.go and
-// fixedtime.go the predicted observables.
+// gradient.go the exact gradient; pit.go the probability integral
+// transform of the gaps; observables.go, countstop.go and fixedtime.go the
+// predicted observables.
 package likelihood

@@ -48,18 +48,7 @@ func (e *Evaluator) fastTables() {
 	e.cf = make([][]float64, (nl+1)*(nl+1))
 	for a := 0; a <= nl; a++ {
 		for b := 0; b <= nl; b++ {
-			u, v := us[a], vs[b]
-			c := make([]float64, n)
-			for k := 0; k < n; k++ {
-				switch s.kind[k] {
-				case 0:
-					c[k] = u[k] * v[k]
-				case 1:
-					c[k] = u[k]*v[k] + u[k+1]*v[k+1]
-					c[k+1] = u[k]*v[k+1] - u[k+1]*v[k]
-				}
-			}
-			e.cf[a*(nl+1)+b] = c
+			e.cf[a*(nl+1)+b] = s.pairCoef(us[a], vs[b])
 		}
 	}
 	kmax := -1
@@ -92,6 +81,30 @@ func (e *Evaluator) fastTables() {
 	for a := 0; a <= nl; a++ {
 		e.ahat[a] = s.rowHat(us[a])
 		e.bhat[a] = s.colHat(vs[a])
+	}
+}
+
+// pairCoef returns the coefficients c of a^T exp(D0 t) b = sum_k c_k z_k(t)
+// (z from coefExact or coefInterval, unshifted) for u = a^T W and
+// v = W^{-1} b: c_k = u_k v_k for a real eigenvalue, and for a pair
+// (c_k, c_{k+1}) = (u_k v_k + u_{k+1} v_{k+1}, u_k v_{k+1} - u_{k+1} v_k),
+// so that the pair contributes c_k Re w + c_{k+1} Im w, w = e^{lambda t}.
+func (s *spectral) pairCoef(u, v []float64) []float64 {
+	c := make([]float64, s.n)
+	s.pairCoefTo(c, u, v)
+	return c
+}
+
+// pairCoefTo is pairCoef into c.
+func (s *spectral) pairCoefTo(c, u, v []float64) {
+	for k := 0; k < s.n; k++ {
+		switch s.kind[k] {
+		case 0:
+			c[k] = u[k] * v[k]
+		case 1:
+			c[k] = u[k]*v[k] + u[k+1]*v[k+1]
+			c[k+1] = u[k]*v[k+1] - u[k+1]*v[k]
+		}
 	}
 }
 

@@ -261,23 +261,14 @@ func (e *Evaluator) generalRecord(ws *work, d *Data, lm *[256]int16, r int) erro
 		return fmt.Errorf("likelihood: record %q event 1: label index %d is not in the data's label table (%d labels)", rec.ID, rec.Label[0], len(d.Labels))
 	}
 	alpha := ws.alpha
-	if e.opt.Start == StartStationary {
-		copy(alpha, e.pi)
-	} else {
-		e.applyDRow(alpha, e.w0, int(l1))
-		s := sum(alpha)
-		if !(s > 0) {
-			return impossible(rec, 0, "first-event probability", s)
-		}
-		for i := range alpha {
-			alpha[i] /= s
-		}
+	if err := e.startAlpha(alpha, rec, int(l1)); err != nil {
+		return err
 	}
 	if ws.acc.grad {
 		return e.generalGrad(ws, rec, steps, info, int(l1))
 	}
 	acc := ws.acc
-	x, tmp := ws.x, ws.alpha2
+	x := ws.x
 	for s := 0; s < steps; s++ {
 		st, err := info(s)
 		if err != nil {
@@ -288,24 +279,57 @@ func (e *Evaluator) generalRecord(ws *work, d *Data, lm *[256]int16, r int) erro
 		} else {
 			copy(x, alpha)
 		}
-		shift, err := e.propRow(ws, tmp, x, st.lo, st.hi, false)
+		lc, err := e.forwardStep(ws, alpha, x, rec, st)
 		if err != nil {
 			return err
 		}
-		if e.sp != nil && e.rowCancels(tmp, ws.u, x, st.lab) {
-			if err := e.accurateRow(ws, tmp, x, st.lo, st.hi); err != nil {
-				return err
-			}
-		}
-		e.applyDRow(alpha, tmp, st.lab)
-		c := sum(alpha)
-		if !(c > 0) || c > math.MaxFloat64 {
-			return impossible(rec, st.k, "density", c)
-		}
-		acc.ll += math.Log(c) + shift
-		for i := range alpha {
-			alpha[i] /= c
-		}
+		acc.ll += lc
 	}
 	return nil
+}
+
+// startAlpha sets alpha to the normalised law before the first step of
+// record rec, whose first label is l1: pi for a stationary start, else
+// w0 D_{l1} normalised.
+func (e *Evaluator) startAlpha(alpha []float64, rec *Record, l1 int) error {
+	if e.opt.Start == StartStationary {
+		copy(alpha, e.pi)
+		return nil
+	}
+	e.applyDRow(alpha, e.w0, l1)
+	s := sum(alpha)
+	if !(s > 0) {
+		return impossible(rec, 0, "first-event probability", s)
+	}
+	for i := range alpha {
+		alpha[i] /= s
+	}
+	return nil
+}
+
+// forwardStep sets alpha to x E(lo, hi) D_l normalised to sum 1 (x =
+// alpha exp(L delta), or alpha, prepared by the caller) and returns the log
+// of the normalisation, shift included: the step's contribution to ln L.
+// Spectral values that lost their accuracy are recomputed by
+// uniformisation. It uses ws.alpha2 and ws.u.
+func (e *Evaluator) forwardStep(ws *work, alpha, x []float64, rec *Record, st stepInfo) (float64, error) {
+	tmp := ws.alpha2
+	shift, err := e.propRow(ws, tmp, x, st.lo, st.hi, false)
+	if err != nil {
+		return 0, err
+	}
+	if e.sp != nil && e.rowCancels(tmp, ws.u, x, st.lab) {
+		if err := e.accurateRow(ws, tmp, x, st.lo, st.hi); err != nil {
+			return 0, err
+		}
+	}
+	e.applyDRow(alpha, tmp, st.lab)
+	c := sum(alpha)
+	if !(c > 0) || c > math.MaxFloat64 {
+		return 0, impossible(rec, st.k, "density", c)
+	}
+	for i := range alpha {
+		alpha[i] /= c
+	}
+	return math.Log(c) + shift, nil
 }

@@ -161,3 +161,36 @@ func coreScaleRate(net *models.Network, idx int, f float64) *models.Network {
 func coreRelErr(a, b, floor float64) float64 {
 	return math.Abs(a-b) / math.Max(math.Abs(b), floor)
 }
+
+// coreFastGeneralCases calls f with single-edge networks (6 random
+// networks of 3 to 5 states, rates over two decades, every other one with
+// missed events) and data of 2 records of nev events under each of four
+// instruments and starts (none; dead time; frames; stationary start with
+// dead time, frames and a censored end), for fast-path against
+// general-path comparisons.
+func coreFastGeneralCases(t *testing.T, nev int, f func(i, oi int, net *models.Network, opt Options, d *Data)) {
+	rng := rand.New(rand.NewPCG(8, 9))
+	opts := []Options{
+		{},
+		{Instrument: Instrument{DeadTime: 0.05}},
+		{Instrument: Instrument{Frame: 0.1}},
+		{Start: StartStationary, Instrument: Instrument{DeadTime: 0.02, Frame: 0.05}},
+	}
+	for i := 0; i < 6; i++ {
+		p := 1.0
+		if i%2 == 1 {
+			p = 0.85
+		}
+		net := coreRandomNet(rng, 3+i%3, i%3, 2, p)
+		for oi, opt := range opts {
+			d := coreSimulate(t, net, uint64(100+i), 2, nev, opt.Instrument.DeadTime)
+			if opt.Instrument.Frame > 0 {
+				d = coreQuantise(d, opt.Instrument.Frame)
+			}
+			if oi == 3 {
+				d.Records[1].End = d.Records[1].Time[nev-1] + 1
+			}
+			f(i, oi, net, opt, d)
+		}
+	}
+}

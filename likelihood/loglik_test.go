@@ -109,55 +109,34 @@ func checkReference(t *testing.T, file string) {
 // 1e-11 relative: both use the same decomposition and differ only in
 // summation order (rounding ~ n eps).
 func TestFastEqualsGeneral(t *testing.T) {
-	rng := rand.New(rand.NewPCG(8, 9))
-	opts := []Options{
-		{},
-		{Instrument: Instrument{DeadTime: 0.05}},
-		{Instrument: Instrument{Frame: 0.1}},
-		{Start: StartStationary, Instrument: Instrument{DeadTime: 0.02, Frame: 0.05}},
-	}
-	for i := 0; i < 6; i++ {
-		p := 1.0
-		if i%2 == 1 {
-			p = 0.85
+	coreFastGeneralCases(t, 150, func(i, oi int, net *models.Network, opt Options, d *Data) {
+		of, og := opt, opt
+		of.Path, og.Path = PathFast, PathGeneral
+		ef, err := NewNetworkEvaluator(net, of)
+		if err != nil {
+			t.Fatal(err)
 		}
-		net := coreRandomNet(rng, 3+i%3, i%3, 2, p)
-		for oi, opt := range opts {
-			d := coreSimulate(t, net, uint64(100+i), 2, 150, opt.Instrument.DeadTime)
-			if opt.Instrument.Frame > 0 {
-				d = coreQuantise(d, opt.Instrument.Frame)
-			}
-			if oi == 3 {
-				d.Records[1].End = d.Records[1].Time[149] + 1
-			}
-			of, og := opt, opt
-			of.Path, og.Path = PathFast, PathGeneral
-			ef, err := NewNetworkEvaluator(net, of)
-			if err != nil {
-				t.Fatal(err)
-			}
-			eg, err := NewNetworkEvaluator(net, og)
-			if err != nil {
-				t.Fatal(err)
-			}
-			lf, gf, err := ef.Gradient(d)
-			if err != nil {
-				t.Fatal(err)
-			}
-			lg, gg, err := eg.Gradient(d)
-			if err != nil {
-				t.Fatal(err)
-			}
-			if coreRelErr(lf, lg, 1) > 1e-11 {
-				t.Errorf("net %d opt %d: fast %.15g, general %.15g", i, oi, lf, lg)
-			}
-			for j := range gf.LogRate {
-				if coreRelErr(gf.LogRate[j], gg.LogRate[j], 1) > 1e-9 {
-					t.Errorf("net %d opt %d: gradient[%d] fast %.12g, general %.12g", i, oi, j, gf.LogRate[j], gg.LogRate[j])
-				}
+		eg, err := NewNetworkEvaluator(net, og)
+		if err != nil {
+			t.Fatal(err)
+		}
+		lf, gf, err := ef.Gradient(d)
+		if err != nil {
+			t.Fatal(err)
+		}
+		lg, gg, err := eg.Gradient(d)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if coreRelErr(lf, lg, 1) > 1e-11 {
+			t.Errorf("net %d opt %d: fast %.15g, general %.15g", i, oi, lf, lg)
+		}
+		for j := range gf.LogRate {
+			if coreRelErr(gf.LogRate[j], gg.LogRate[j], 1) > 1e-9 {
+				t.Errorf("net %d opt %d: gradient[%d] fast %.12g, general %.12g", i, oi, j, gf.LogRate[j], gg.LogRate[j])
 			}
 		}
-	}
+	})
 }
 
 // TestWorkersDeterministic: the result is bit-identical for any number of
