@@ -210,6 +210,9 @@ func Fit(m *models.Model, d *likelihood.Data, opt FitOptions) (*FitResult, error
 	}
 	res.Warnings = append(res.Warnings, structuralWarning(m, net0)...)
 
+	if err := structurallyImpossible(m.Name, net0, d, opt.Likelihood.Instrument); err != nil {
+		return nil, err
+	}
 	ob, err := newObjective(m, d, opt.Likelihood, x0)
 	if err != nil {
 		return nil, fmt.Errorf("fit %s: %w", m.Name, err)
