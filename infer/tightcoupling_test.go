@@ -346,16 +346,16 @@ func TestTightCouplingParallel(t *testing.T) {
 }
 
 // parseSpec reads a model spec file.
-func parseSpec(t *testing.T, path string) *models.Model {
-	t.Helper()
+func parseSpec(tb testing.TB, path string) *models.Model {
+	tb.Helper()
 	f, err := os.Open(path)
 	if err != nil {
-		t.Fatal(err)
+		tb.Fatal(err)
 	}
 	defer f.Close()
 	m, err := models.Parse(f, path)
 	if err != nil {
-		t.Fatal(err)
+		tb.Fatal(err)
 	}
 	return m
 }

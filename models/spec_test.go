@@ -60,7 +60,7 @@ func FuzzParse(f *testing.F) {
 		f.Fatal(err)
 	}
 	f.Add(string(src))
-	for _, name := range []string{"offedge", "shared-label", "balanced", "twocycle-stall", "ring4"} {
+	for _, name := range []string{"offedge", "shared-label", "balanced", "twocycle-stall", "ring4", "twostate-parallel", "ring3-slip"} {
 		more, err := os.ReadFile("../testdata/" + name + ".toml")
 		if err != nil {
 			f.Fatal(err)
