@@ -55,6 +55,15 @@ func TestParallelSpecs(t *testing.T) {
 	if got, want := len(sn.CycleBasis()), len(sn.Edges)-len(sn.States)+1; got != 2 || want != 2 {
 		t.Errorf("ring3-slip: %d cycles, want %d", got, want)
 	}
+	// Each basis cycle, written back as a state list and edges, resolves to
+	// the same steps through the model (the route of affinity constraints).
+	for _, c := range sn.CycleBasis() {
+		states, edges := sn.CyclePath(c)
+		steps, err := slip.CycleSteps(states, edges)
+		if err != nil || !slices.Equal(steps, c.Steps) {
+			t.Errorf("cycle %s: steps %v (%v), want %v", sn.CycleName(c), steps, err, c.Steps)
+		}
+	}
 	// A cycle that avoids the parallel pair is named by its states alone.
 	r3 := parseFile(t, "../testdata/ring3.toml")
 	rn, _ := r3.Network(r3.Start())

@@ -181,17 +181,32 @@ func (n *Network) Parallel(e int) []int {
 	return out
 }
 
+// CyclePath returns the cycle as a closed list of state names
+// [s0, s1, ..., s0] and, when a step runs along one of several parallel
+// edges (so that the states alone are ambiguous), the edge index of every
+// step, else nil: the Cycle and Edges of an AffinitySpec that names this
+// cycle (a Model's edges and its Network's share their indices).
+func (n *Network) CyclePath(c Cycle) (states []string, edges []int) {
+	for _, i := range c.States {
+		states = append(states, n.States[i])
+	}
+	if len(c.States) > 0 {
+		states = append(states, n.States[c.States[0]])
+	}
+	for _, st := range c.Steps {
+		if len(n.Parallel(st.Edge)) > 0 {
+			return states, c.EdgeIndices()
+		}
+	}
+	return states, nil
+}
+
 // CycleName returns the cycle's state names joined as "A-B-C-A" and, when
 // a step runs along one of several parallel edges (so that the states
 // alone are ambiguous), the edge index of every step: "A-B-A via edges 0, 2".
 func (n *Network) CycleName(c Cycle) string {
-	s := c.Names(n.States)
-	for _, st := range c.Steps {
-		if len(n.Parallel(st.Edge)) > 0 {
-			return s + " via edges " + joinInts(c.EdgeIndices())
-		}
-	}
-	return s
+	states, edges := n.CyclePath(c)
+	return AffinitySpec{Cycle: states, Edges: edges}.CycleName()
 }
 
 // joinInts writes xs as "0, 2, 1".
