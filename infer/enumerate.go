@@ -224,7 +224,7 @@ func TopologyKey(m *models.Model, plus string) (string, error) {
 	for _, e := range m.Edges {
 		b := pairBit(idx[e.Between[0]], idx[e.Between[1]])
 		if code&b != 0 {
-			return "", fmt.Errorf("topology key of %s: two edges join %s and %s", m.Name, e.Between[0], e.Between[1])
+			return "", fmt.Errorf("topology key of %s: two edges join %s and %s (parallel edges); topology keys cover graphs without parallel edges", m.Name, e.Between[0], e.Between[1])
 		}
 		code |= b
 	}

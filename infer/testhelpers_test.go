@@ -2,7 +2,6 @@ package infer
 
 import (
 	"math"
-	"os"
 	"strconv"
 	"testing"
 
@@ -64,15 +63,7 @@ func recRing(u, w []float64, p float64) *models.Network {
 // recModel loads a shipped model spec at its start values.
 func recModel(tb testing.TB, path string) *models.Network {
 	tb.Helper()
-	f, err := os.Open(path)
-	if err != nil {
-		tb.Fatal(err)
-	}
-	defer f.Close()
-	m, err := models.Parse(f, path)
-	if err != nil {
-		tb.Fatal(err)
-	}
+	m := parseSpec(tb, path)
 	net, err := m.Network(m.Start())
 	if err != nil {
 		tb.Fatal(err)

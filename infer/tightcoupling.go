@@ -35,74 +35,126 @@ import (
 // maxVisibleCycles bounds the number of cycles VisibleCycles lists.
 const maxVisibleCycles = 100000
 
-// VisibleCycles returns every simple cycle of m that crosses the directed
-// edge carrying the label plus, in its direction, as closed state lists
-// [tail, head, ..., tail]: shortest first, then in the order of the
-// states' names. A graph without such a cycle (a chain) gives none. It
-// fails when plus is not on exactly one directed edge, when two edges join
-// the same pair of states, or beyond 100000 cycles.
+// CyclePath is a cycle of a model: its closed state list
+// [s0, s1, ..., s0] and the index into Model.Edges of every step
+// (len(States) - 1 entries). The edges matter when parallel edges join two
+// states of the cycle; otherwise the states alone fix it.
+type CyclePath struct {
+	States []string
+	Edges  []int
+}
+
+// String writes the cycle as "A-B-C-A", followed by " via edges 0, 3"
+// when a step runs along one of several parallel edges.
+func (c CyclePath) String() string {
+	return models.AffinitySpec{Cycle: c.States, Edges: c.Edges}.CycleName()
+}
+
+// VisibleCycles returns the state lists of VisibleCyclePaths: every simple
+// cycle of m that crosses the directed edge carrying plus, in its
+// direction, as closed state lists [tail, head, ..., tail]. With parallel
+// edges two cycles can share a state list (a step along either channel);
+// VisibleCyclePaths tells them apart.
 func VisibleCycles(m *models.Model, plus string) ([][]string, error) {
+	paths, err := VisibleCyclePaths(m, plus)
+	if err != nil {
+		return nil, err
+	}
+	out := make([][]string, len(paths))
+	for i, p := range paths {
+		out[i] = p.States
+	}
+	return out, nil
+}
+
+// VisibleCyclePaths returns every simple cycle of m that crosses the
+// directed edge carrying the label plus, in its direction: shortest first,
+// then in the order of the states' names, then of the edge indices. A
+// simple cycle visits each state once and runs along each edge once, so a
+// hidden edge parallel to the visible one closes a cycle of two states. A
+// graph without such a cycle (a chain) gives none. Edges is set when a
+// step of the cycle joins two states that parallel edges join, and nil
+// otherwise (the states then fix the cycle). It fails when plus is not on
+// exactly one directed edge, or beyond 100000 cycles.
+func VisibleCyclePaths(m *models.Model, plus string) ([]CyclePath, error) {
 	tail, head, err := visibleEnds(m, plus)
 	if err != nil {
 		return nil, err
 	}
+	ve := slices.IndexFunc(m.Edges, func(e models.EdgeSpec) bool { return e.Labels[0] == plus || e.Labels[1] == plus })
 	n := len(m.States)
 	idx := map[string]int{}
 	for i, s := range m.States {
 		idx[s] = i
 	}
-	adj := make([][]int, n)
-	seen := map[[2]int]bool{}
-	for _, e := range m.Edges {
+	type hop struct{ to, edge int }
+	adj := make([][]hop, n)
+	pairs := map[[2]int]int{} // edges per unordered pair of states
+	for k, e := range m.Edges {
 		a, b := idx[e.Between[0]], idx[e.Between[1]]
-		key := [2]int{min(a, b), max(a, b)}
-		if seen[key] {
-			return nil, fmt.Errorf("model %s: two edges join %s and %s; give the cycles' affinities one by one in the spec", m.Name, e.Between[0], e.Between[1])
-		}
-		seen[key] = true
-		adj[a] = append(adj[a], b)
-		adj[b] = append(adj[b], a)
+		adj[a] = append(adj[a], hop{b, k})
+		adj[b] = append(adj[b], hop{a, k})
+		pairs[[2]int{min(a, b), max(a, b)}]++
 	}
 	for _, a := range adj {
-		slices.SortFunc(a, func(x, y int) int { return strings.Compare(m.States[x], m.States[y]) })
+		slices.SortFunc(a, func(x, y hop) int {
+			if c := strings.Compare(m.States[x.to], m.States[y.to]); c != 0 {
+				return c
+			}
+			return x.edge - y.edge
+		})
 	}
-	// Simple paths head -> tail of at least two steps (one step would be
-	// the visible edge itself).
-	var out [][]string
+	// Simple paths head -> tail that do not use the visible edge itself.
+	var out []CyclePath
 	on := make([]bool, n)
-	path := []int{tail, head}
+	path, edges := []int{tail, head}, []int{ve}
 	on[tail], on[head] = true, true
+	emit := func() {
+		c := CyclePath{States: make([]string, 0, len(path)+1)}
+		ambiguous := false
+		for i, p := range path {
+			c.States = append(c.States, m.States[p])
+			q := path[(i+1)%len(path)]
+			ambiguous = ambiguous || pairs[[2]int{min(p, q), max(p, q)}] > 1
+		}
+		c.States = append(c.States, m.States[tail])
+		if ambiguous {
+			c.Edges = slices.Clone(edges)
+		}
+		out = append(out, c)
+	}
 	var walk func(s int) error
 	walk = func(s int) error {
-		for _, t := range adj[s] {
-			if t == tail && len(path) > 2 {
-				cyc := make([]string, 0, len(path)+1)
-				for _, p := range path {
-					cyc = append(cyc, m.States[p])
-				}
-				out = append(out, append(cyc, m.States[tail]))
+		for _, h := range adj[s] {
+			if h.edge == ve {
+				continue
+			}
+			if h.to == tail {
+				edges = append(edges, h.edge)
+				emit()
+				edges = edges[:len(edges)-1]
 				if len(out) > maxVisibleCycles {
 					return fmt.Errorf("model %s: more than %d cycles cross the visible edge; give the cycles' affinities one by one in the spec", m.Name, maxVisibleCycles)
 				}
 				continue
 			}
-			if on[t] {
+			if on[h.to] {
 				continue
 			}
-			on[t] = true
-			path = append(path, t)
-			if err := walk(t); err != nil {
+			on[h.to] = true
+			path, edges = append(path, h.to), append(edges, h.edge)
+			if err := walk(h.to); err != nil {
 				return err
 			}
-			path = path[:len(path)-1]
-			on[t] = false
+			path, edges = path[:len(path)-1], edges[:len(edges)-1]
+			on[h.to] = false
 		}
 		return nil
 	}
 	if err := walk(head); err != nil {
 		return nil, err
 	}
-	slices.SortStableFunc(out, func(a, b []string) int { return len(a) - len(b) })
+	slices.SortStableFunc(out, func(a, b CyclePath) int { return len(a.States) - len(b.States) })
 	return out, nil
 }
 
@@ -123,7 +175,7 @@ func TightCoupling(m *models.Model, plus string, value float64) (*models.Model, 
 	if math.IsNaN(value) || math.IsInf(value, 0) {
 		return nil, fmt.Errorf("model %s: known affinity %v is not a finite number", m.Name, value)
 	}
-	cycles, err := VisibleCycles(m, plus)
+	cycles, err := VisibleCyclePaths(m, plus)
 	if err != nil {
 		return nil, err
 	}
@@ -145,7 +197,7 @@ func TightCoupling(m *models.Model, plus string, value float64) (*models.Model, 
 	var vals []float64
 	var solved []string
 	for _, a := range m.Affinities {
-		c, err := cycleCoef(m, a.Cycle)
+		c, err := cycleCoef(m, CyclePath{a.Cycle, a.Edges})
 		if err != nil {
 			return nil, err
 		}
@@ -172,14 +224,14 @@ func TightCoupling(m *models.Model, plus string, value float64) (*models.Model, 
 			if math.Abs(implied-value) <= 1e-9*(1+math.Abs(value)) {
 				continue // the model's constraints already give this value
 			}
-			return nil, fmt.Errorf("model %s: its affinity constraints fix cycle %s at %.6g k_BT, which contradicts the known affinity %g", m.Name, strings.Join(cyc, "-"), implied, value)
+			return nil, fmt.Errorf("model %s: its affinity constraints fix cycle %s at %.6g k_BT, which contradicts the known affinity %g", m.Name, cyc, implied, value)
 		}
 		s := chooseSolve(m, cyc, coef, rows, solved, params, visible)
 		if s == "" {
-			return nil, fmt.Errorf("model %s: no free rate of cycle %s can be solved from the tight-coupling constraint alongside the model's other constraints", m.Name, strings.Join(cyc, "-"))
+			return nil, fmt.Errorf("model %s: no free rate of cycle %s can be solved from the tight-coupling constraint alongside the model's other constraints", m.Name, cyc)
 		}
 		rows, vals, solved = append(rows, coef), append(vals, value), append(solved, s)
-		out.Affinities = append(out.Affinities, models.AffinitySpec{Cycle: cyc, Value: value, Solve: s})
+		out.Affinities = append(out.Affinities, models.AffinitySpec{Cycle: cyc.States, Edges: cyc.Edges, Value: value, Solve: s})
 		delete(params, s)
 	}
 	out.Params = out.Params[:0]
@@ -212,35 +264,25 @@ func cloneModel(m *models.Model) *models.Model {
 }
 
 // cycleSteps calls f with the edge index and direction of every step of
-// the closed state list cyc.
-func cycleSteps(m *models.Model, cyc []string, f func(e, dir int)) error {
-	for i := 0; i+1 < len(cyc); i++ {
-		found := false
-		for e, es := range m.Edges {
-			switch {
-			case es.Between[0] == cyc[i] && es.Between[1] == cyc[i+1]:
-				f(e, 0)
-			case es.Between[1] == cyc[i] && es.Between[0] == cyc[i+1]:
-				f(e, 1)
-			default:
-				continue
-			}
-			if es.OneWay {
-				return fmt.Errorf("model %s: cycle %s runs through the one-way edge %s-%s, so its affinity is infinite and cannot be set", m.Name, strings.Join(cyc, "-"), es.Between[0], es.Between[1])
-			}
-			found = true
-			break
+// the cycle.
+func cycleSteps(m *models.Model, cyc CyclePath, f func(e, dir int)) error {
+	steps, err := m.CycleSteps(cyc.States, cyc.Edges)
+	if err != nil {
+		return fmt.Errorf("model %s: cycle %s: %w", m.Name, cyc, err)
+	}
+	for _, st := range steps {
+		dir := 0
+		if !st.Forward {
+			dir = 1
 		}
-		if !found {
-			return fmt.Errorf("model %s: no edge joins %s and %s", m.Name, cyc[i], cyc[i+1])
-		}
+		f(st.Edge, dir)
 	}
 	return nil
 }
 
 // cycleEdgeVector returns the oriented edge vector of a cycle: +1 for an
 // edge run From->To, -1 for To->From.
-func cycleEdgeVector(m *models.Model, cyc []string) ([]float64, error) {
+func cycleEdgeVector(m *models.Model, cyc CyclePath) ([]float64, error) {
 	v := make([]float64, len(m.Edges))
 	err := cycleSteps(m, cyc, func(e, dir int) { v[e] += 1 - 2*float64(dir) })
 	return v, err
@@ -248,7 +290,7 @@ func cycleEdgeVector(m *models.Model, cyc []string) ([]float64, error) {
 
 // cycleCoef returns the coefficients of ln(rate parameter) in the cycle's
 // affinity (forward rates +1, backward -1; ties add up).
-func cycleCoef(m *models.Model, cyc []string) (map[string]float64, error) {
+func cycleCoef(m *models.Model, cyc CyclePath) (map[string]float64, error) {
 	c := map[string]float64{}
 	err := cycleSteps(m, cyc, func(e, dir int) {
 		c[m.Edges[e].Rates[dir]]++
@@ -321,7 +363,7 @@ func inSpan(rows []map[string]float64, coef map[string]float64) ([]float64, bool
 // solved, plus this one) well conditioned. Preference: the rates against
 // the cycle's direction from the closing step backwards, then the
 // forward rates likewise, the visible edge's last.
-func chooseSolve(m *models.Model, cyc []string, coef map[string]float64, rows []map[string]float64, solved []string, params map[string]models.Param, visible map[string]bool) string {
+func chooseSolve(m *models.Model, cyc CyclePath, coef map[string]float64, rows []map[string]float64, solved []string, params map[string]models.Param, visible map[string]bool) string {
 	var steps [][2]int
 	_ = cycleSteps(m, cyc, func(e, dir int) { steps = append(steps, [2]int{e, dir}) })
 	var cands, last []string

@@ -3,6 +3,7 @@ package infer
 import (
 	"math"
 	"math/rand/v2"
+	"os"
 	"strings"
 	"testing"
 
@@ -164,8 +165,7 @@ func TestTightCoupling(t *testing.T) {
 // against the cycle on its closing step (C->A is direction 0 of edge C-A,
 // so m3, the rate A->C); a contradicting
 // constraint on the crossing cycle is refused and an agreeing one is not
-// repeated; a label on two edges and a
-// parallel edge are refused.
+// repeated; a label on two edges is refused.
 func TestTightCouplingSpec(t *testing.T) {
 	src := `name = "loop"
 states = ["A", "B", "C", "D", "E"]
@@ -260,9 +260,123 @@ solve = "m6"
 	if _, err := VisibleCycles(two, "+"); err == nil || !strings.Contains(err.Error(), "2 directed edges") {
 		t.Errorf("label on two edges: %v", err)
 	}
-	par := cloneModel(m)
-	par.Edges = append(par.Edges, models.EdgeSpec{Between: [2]string{"B", "C"}, Rates: [2]string{"k7", "m7"}})
-	if _, err := VisibleCycles(par, "+"); err == nil || !strings.Contains(err.Error(), "two edges join B and C") {
-		t.Errorf("parallel edges: %v", err)
+}
+
+// TestTightCouplingParallel: parallel edges. A hidden channel beside B-C
+// of the loop model gives two crossing cycles A-B-C-A, one per channel,
+// told apart by their edges; tight coupling constrains both (so the
+// two-state cycle of the pair, their difference, has affinity 0). On the
+// two-state ring (twostate-parallel.toml) the one crossing cycle runs out
+// along the visible edge and back along the hidden one. Every constraint
+// is checked on the numeric rates along the named edges.
+func TestTightCouplingParallel(t *testing.T) {
+	m := parseSpec(t, "../testdata/twostate-parallel.toml")
+	paths, err := VisibleCyclePaths(m, "+")
+	if err != nil {
+		t.Fatal(err)
 	}
+	if len(paths) != 1 || paths[0].String() != "Loaded-Empty-Loaded via edges 1, 0" {
+		t.Fatalf("two-state ring: %v", paths)
+	}
+	tc, err := TightCoupling(m, "+", 3)
+	if err != nil {
+		t.Fatal(err)
+	}
+	net, err := tc.Network(tc.Start())
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(tc.Affinities) != 1 {
+		t.Fatalf("constraints %+v", tc.Affinities)
+	}
+	if a := edgeCycleAffinity(t, net, paths[0]); math.Abs(a-3) > 1e-12 {
+		t.Errorf("two-state cycle affinity %g, want 3", a)
+	}
+
+	loop := parseSpec(t, "../testdata/ring3.toml")
+	loop.Edges = append(loop.Edges, models.EdgeSpec{Between: [2]string{"C", "B"}, Rates: [2]string{"kcb", "kbc"}})
+	loop.Edges[3].Rates = [2]string{"scb", "sbc"}
+	loop.Params = append(loop.Params, models.Param{Name: "scb", Value: 0.3, Upper: math.Inf(1)}, models.Param{Name: "sbc", Value: 0.2, Upper: math.Inf(1)})
+	loop, err = roundTrip(loop)
+	if err != nil {
+		t.Fatal(err)
+	}
+	paths, err = VisibleCyclePaths(loop, "+")
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := []string{"A-B-C-A via edges 0, 1, 2", "A-B-C-A via edges 0, 3, 2"}
+	if len(paths) != 2 || paths[0].String() != want[0] || paths[1].String() != want[1] {
+		t.Fatalf("ring with a parallel B-C channel: %v, want %v", paths, want)
+	}
+	if _, err := TopologyKey(loop, "+"); err == nil || !strings.Contains(err.Error(), "two edges join C and B (parallel edges)") {
+		t.Errorf("topology key with parallel edges: %v", err)
+	}
+	states, _ := VisibleCycles(loop, "+")
+	if len(states) != 2 || strings.Join(states[0], "-") != "A-B-C-A" || strings.Join(states[1], "-") != "A-B-C-A" {
+		t.Errorf("state lists %v", states)
+	}
+	tc, err = TightCoupling(loop, "+", 2.5)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(tc.Affinities) != 2 {
+		t.Fatalf("constraints %+v", tc.Affinities)
+	}
+	rng := rand.New(rand.NewPCG(31, 32))
+	for trial := 0; trial < 5; trial++ {
+		x := tc.Start()
+		for i := range x {
+			x[i] *= math.Exp(2 * rng.NormFloat64())
+		}
+		net, err := tc.Network(x)
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, p := range paths {
+			if a := edgeCycleAffinity(t, net, p); math.Abs(a-2.5) > 1e-12 {
+				t.Errorf("trial %d: %v affinity %g, want 2.5", trial, p, a)
+			}
+		}
+		pair := CyclePath{States: []string{"B", "C", "B"}, Edges: []int{1, 3}}
+		if a := edgeCycleAffinity(t, net, pair); math.Abs(a) > 1e-12 {
+			t.Errorf("trial %d: parallel pair affinity %g, want 0", trial, a)
+		}
+	}
+}
+
+// parseSpec reads a model spec file.
+func parseSpec(tb testing.TB, path string) *models.Model {
+	tb.Helper()
+	f, err := os.Open(path)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	defer f.Close()
+	m, err := models.Parse(f, path)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	return m
+}
+
+// edgeCycleAffinity computes ln(prod forward / prod backward) along the
+// named edges of a cycle, directly from the network's rates: step i runs
+// along edge p.Edges[i] from p.States[i] to p.States[i+1].
+func edgeCycleAffinity(t *testing.T, net *models.Network, p CyclePath) float64 {
+	t.Helper()
+	a := 0.0
+	for i, k := range p.Edges {
+		e := net.Edges[k]
+		from, to := net.States[e.From], net.States[e.To]
+		switch {
+		case from == p.States[i] && to == p.States[i+1]:
+			a += math.Log(e.Rate[0] / e.Rate[1])
+		case to == p.States[i] && from == p.States[i+1]:
+			a += math.Log(e.Rate[1] / e.Rate[0])
+		default:
+			t.Fatalf("edge %d does not join %s and %s", k, p.States[i], p.States[i+1])
+		}
+	}
+	return a
 }

@@ -79,13 +79,16 @@
 // ln L is the sum over records. General path: the forward recursion
 // alpha_k = alpha_{k-1} M_k, with alpha rescaled to sum 1 at every step and
 // ln L accumulating the logs of the scale factors. Fast path (used
-// automatically when every label sits on exactly one directed edge and the
-// spectral route is in use, for any detection probability, dead time,
+// automatically when every label sits on exactly one directed edge, or on
+// parallel edges that all run from the same state to the same state, and
+// the spectral route is in use, for any detection probability, dead time,
 // frames, start or end): the state after each event is known, so
 //
 //	ln L_r = sum_k ln psi_{l_{k-1} -> l_k}(tau_k),
 //	psi_{l->l'}(tau) = [exp(L delta) E(tau)]_{to(l), from(l')} p_{l'} w_{l'},
 //
+// (w_{l'} the summed rate of the label's parallel channels; a hidden
+// channel parallel to a visible edge is part of D0 like any hidden edge)
 // each term costing O(N) from a precomputed table (the product is kept as
 // a mantissa and a power of two, so the loop takes no logarithm). The two
 // paths agree where both apply (tested).

@@ -36,7 +36,9 @@ type PathMode int
 
 const (
 	// PathAuto uses the fast path when it applies (every label on one
-	// directed edge and the spectral route in use), else the general one.
+	// directed edge, or on parallel edges in the same direction, so that
+	// the state after each event is known; and the spectral route in
+	// use), else the general one.
 	PathAuto PathMode = iota
 	// PathGeneral always runs the forward recursion on state vectors.
 	PathGeneral
@@ -183,10 +185,13 @@ func NewEvaluator(k *Kernels, opt Options) (*Evaluator, error) {
 	if err := e.startLaw(); err != nil {
 		return nil, err
 	}
-	single := true
+	single := true // every label on one ordered pair of states
 	for _, ts := range k.Edges {
-		if len(ts) != 1 {
+		if len(ts) == 0 {
 			single = false
+		}
+		for _, t := range ts {
+			single = single && t.From == ts[0].From && t.To == ts[0].To
 		}
 	}
 	switch opt.Path {
@@ -194,7 +199,7 @@ func NewEvaluator(k *Kernels, opt Options) (*Evaluator, error) {
 		e.fast = single && e.sp != nil
 	case PathFast:
 		if !single {
-			return nil, errors.New("likelihood: fast path needs every label on exactly one directed edge")
+			return nil, errors.New("likelihood: fast path needs every label on exactly one directed edge (or on parallel edges in the same direction)")
 		}
 		if e.sp == nil {
 			return nil, fmt.Errorf("likelihood: fast path needs the spectral route (in use: %v)", prop.Method())

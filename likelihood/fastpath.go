@@ -12,7 +12,10 @@ func (e *Evaluator) fastTables() {
 	n, nl, s := e.n, e.nl, e.sp
 	e.from, e.to, e.pw = make([]int, nl), make([]int, nl), make([]float64, nl)
 	for l, ts := range e.k.Edges {
-		e.from[l], e.to[l], e.pw[l] = ts[0].From, ts[0].To, e.dsp[l][0].v
+		e.from[l], e.to[l] = ts[0].From, ts[0].To
+		for _, d := range e.dsp[l] { // parallel edges of one direction add up
+			e.pw[l] += d.v
+		}
 	}
 	us := make([][]float64, nl+1) // a^T W
 	vs := make([][]float64, nl+1) // W^{-1} b

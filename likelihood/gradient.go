@@ -576,7 +576,9 @@ func (e *Evaluator) finalize(acc *accum) (*Gradient, error) {
 				}
 			}
 			for l := 0; l < nl; l++ {
-				sd[l][0] += acc.cnt[l] / e.pw[l]
+				for idx := range sd[l] { // each parallel edge of the label's entry
+					sd[l][idx] += acc.cnt[l] / e.pw[l]
+				}
 			}
 		}
 		// K = Re(V^{-T} C V^T).

@@ -645,16 +645,18 @@ func obsMSolve(d0 *mat.Dense, absorb []float64, r *mat.Dense) (*mat.Dense, error
 }
 
 // obsReverseLabels maps each label to the label carried by exactly its
-// reversed directed edges, or -1.
+// reversed directed edges, or -1. Directed edges are (edge, direction):
+// with parallel edges, the reverse of a jump along one channel runs back
+// along the same channel, not along its parallel neighbour.
 func obsReverseLabels(k *Kernels) []int {
 	rev := make([]int, len(k.Edges))
 	set := func(l int, flip bool) map[[2]int]bool {
 		s := make(map[[2]int]bool, len(k.Edges[l]))
 		for _, t := range k.Edges[l] {
 			if flip {
-				s[[2]int{t.To, t.From}] = true
+				s[[2]int{t.Edge, 1 - t.Dir}] = true
 			} else {
-				s[[2]int{t.From, t.To}] = true
+				s[[2]int{t.Edge, t.Dir}] = true
 			}
 		}
 		return s
@@ -666,11 +668,12 @@ func obsReverseLabels(k *Kernels) []int {
 		}
 		want := set(l, true)
 		for l2 := range k.Edges {
-			if l2 == l || len(k.Edges[l2]) != len(want) {
+			have := set(l2, false)
+			if l2 == l || len(have) != len(want) {
 				continue
 			}
 			ok := true
-			for e := range set(l2, false) {
+			for e := range have {
 				if !want[e] {
 					ok = false
 					break

@@ -1,6 +1,7 @@
 package models
 
 import (
+	"errors"
 	"fmt"
 	"math"
 	"slices"
@@ -50,12 +51,45 @@ type constraintError struct {
 	msg   string
 }
 
-// cycleCoefficients returns the coefficients of ln(rate parameter) in the
-// affinity of the closed state sequence cycle.
-func (m *Model) cycleCoefficients(cycle []string) (map[string]float64, error) {
+// edgesError marks a problem with an affinity's edges list (reported at
+// the key affinity[i].edges rather than .cycle).
+type edgesError struct{ msg string }
+
+func (e *edgesError) Error() string { return e.msg }
+
+// edgeName names edge i of the model for messages: "edge[2] (A-B, rates
+// s1, r1)".
+func (m *Model) edgeName(i int) string {
+	e := m.Edges[i]
+	r := e.Rates[0]
+	if !e.OneWay {
+		r += ", " + e.Rates[1]
+	}
+	return fmt.Sprintf("edge[%d] (%s-%s, rates %s)", i, e.Between[0], e.Between[1], r)
+}
+
+// CycleName returns the constraint's cycle as "A-B-C-A", followed by
+// " via edges 0, 1, 2" when it names the edge of every step.
+func (a AffinitySpec) CycleName() string {
+	s := strings.Join(a.Cycle, "-")
+	if a.Edges != nil {
+		s += " via edges " + joinInts(a.Edges)
+	}
+	return s
+}
+
+// CycleSteps resolves a closed state list (cycle[0] == cycle[len-1]) to
+// the edge steps it takes. edges, when not nil, gives the index into
+// m.Edges of every step (len(cycle) - 1 entries); it is required when a
+// step joins two states that parallel edges join, and checked otherwise.
+// A cycle visits each state once (the closing repeat aside) and runs along
+// each edge once, so it has at least two distinct states, and exactly two
+// only along two parallel edges. A step along a one-way edge is an error:
+// the cycle's affinity is infinite.
+func (m *Model) CycleSteps(cycle []string, edges []int) ([]Step, error) {
 	n := len(cycle)
-	if n < 4 || cycle[0] != cycle[n-1] {
-		return nil, fmt.Errorf("states %v do not form a cycle: need at least three distinct states, returning to the first", cycle)
+	if n < 3 || cycle[0] != cycle[n-1] {
+		return nil, fmt.Errorf("states %v do not form a cycle: need at least two distinct states, returning to the first", cycle)
 	}
 	known := map[string]bool{}
 	for _, s := range m.States {
@@ -71,31 +105,80 @@ func (m *Model) cycleCoefficients(cycle []string) (map[string]float64, error) {
 		}
 		seen[s] = true
 	}
-	coef := map[string]float64{}
+	if edges != nil && len(edges) != n-1 {
+		return nil, &edgesError{fmt.Sprintf("%d edge indices for the %d steps of the cycle %s; give one per step", len(edges), n-1, strings.Join(cycle, "-"))}
+	}
+	steps := make([]Step, n-1)
+	used := map[int]int{} // edge -> step
 	for i := 0; i+1 < n; i++ {
 		a, b := cycle[i], cycle[i+1]
-		found := false
-		for _, e := range m.Edges {
-			d := -1
-			switch {
-			case e.Between[0] == a && e.Between[1] == b:
-				d = 0
-			case e.Between[1] == a && e.Between[0] == b:
-				d = 1
+		var join []int
+		for j, e := range m.Edges {
+			if (e.Between[0] == a && e.Between[1] == b) || (e.Between[1] == a && e.Between[0] == b) {
+				join = append(join, j)
 			}
-			if d < 0 {
-				continue
-			}
-			found = true
-			if e.OneWay {
-				return nil, fmt.Errorf("the cycle runs through the one-way edge %s-%s, so its affinity is infinite and cannot be constrained", e.Between[0], e.Between[1])
-			}
-			coef[e.Rates[d]]++
-			coef[e.Rates[1-d]]--
 		}
-		if !found {
+		if len(join) == 0 {
 			return nil, fmt.Errorf("states %v do not form a cycle: no edge joins %s and %s", cycle, a, b)
 		}
+		e := join[0]
+		switch {
+		case edges != nil:
+			e = edges[i]
+			if !slices.Contains(join, e) {
+				names := make([]string, len(join))
+				for k, j := range join {
+					names[k] = fmt.Sprintf("edge[%d]", j)
+				}
+				what := fmt.Sprintf("there is no edge[%d] (the spec has %d edges, numbered from 0)", e, len(m.Edges))
+				if e < len(m.Edges) {
+					what = m.edgeName(e) + " does not join them"
+				}
+				verb := "joins"
+				if len(join) > 1 {
+					verb = "join"
+				}
+				return nil, &edgesError{fmt.Sprintf("step %d (%s to %s): %s; %s %s %s and %s", i+1, a, b, what, strings.Join(names, " and "), verb, a, b)}
+			}
+		case len(join) > 1:
+			names := make([]string, len(join))
+			for k, j := range join {
+				names[k] = m.edgeName(j)
+			}
+			return nil, fmt.Errorf("states %s and %s are joined by the parallel edges %s, so the state list does not say which one the cycle takes; add edges = [...] with the index of the edge of every step (numbered from 0 in file order; %d entries)", a, b, strings.Join(names, " and "), n-1)
+		}
+		if k, dup := used[e]; dup {
+			if n == 3 {
+				return nil, fmt.Errorf("states %v do not form a cycle: a cycle of two states needs two parallel edges between them, out along one and back along the other (edges = [i, j])", cycle)
+			}
+			return nil, &edgesError{fmt.Sprintf("steps %d and %d both use edge[%d]; a cycle runs along each edge once", k+1, i+1, e)}
+		}
+		used[e] = i
+		es := m.Edges[e]
+		if es.OneWay {
+			return nil, fmt.Errorf("the cycle runs through the one-way edge %s-%s, so its affinity is infinite and cannot be constrained", es.Between[0], es.Between[1])
+		}
+		steps[i] = Step{Edge: e, Forward: es.Between[0] == a}
+	}
+	return steps, nil
+}
+
+// cycleCoefficients returns the coefficients of ln(rate parameter) in the
+// affinity of the constraint's cycle.
+func (m *Model) cycleCoefficients(a AffinitySpec) (map[string]float64, error) {
+	steps, err := m.CycleSteps(a.Cycle, a.Edges)
+	if err != nil {
+		return nil, err
+	}
+	coef := map[string]float64{}
+	for _, st := range steps {
+		d := 0
+		if !st.Forward {
+			d = 1
+		}
+		e := m.Edges[st.Edge]
+		coef[e.Rates[d]]++
+		coef[e.Rates[1-d]]--
 	}
 	for k, c := range coef {
 		if c == 0 {
@@ -121,9 +204,14 @@ func (m *Model) checkAffinities() []constraintError {
 	solvedBy := map[string]int{}
 	ok := true
 	for i, a := range m.Affinities {
-		coef, err := m.cycleCoefficients(a.Cycle)
+		coef, err := m.cycleCoefficients(a)
 		if err != nil {
-			bad(i, "cycle", "%v", err)
+			field := "cycle"
+			var ee *edgesError
+			if errors.As(err, &ee) {
+				field = "edges"
+			}
+			bad(i, field, "%v", err)
 			ok = false
 			continue
 		}
@@ -217,7 +305,7 @@ func (m *Model) buildSystem() *affinitySystem {
 	coefs := make([]map[string]float64, k)
 	set := map[string]bool{}
 	for i, a := range m.Affinities {
-		coefs[i], _ = m.cycleCoefficients(a.Cycle)
+		coefs[i], _ = m.cycleCoefficients(a)
 		for name := range coefs[i] {
 			set[name] = true
 		}

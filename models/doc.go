@@ -2,6 +2,16 @@
 // named states whose edges carry two directed rates (units 1/time) and,
 // on some directions, visible labels with a detection probability.
 //
+// Two edges may join the same pair of states (parallel edges: a mechanical
+// step and a futile slip, a visible step and a hidden channel beside it,
+// the two halves of a two-state periodic scheme). Each is its own channel
+// with its own rates and labels; the generator adds their rates. A cycle
+// is then a list of edge steps, not of states: a parallel pair closes a
+// cycle of two states, the basis has |E| - |V| + 1 cycles as for any
+// graph, and an affinity constraint whose state list crosses a parallel
+// pair names the edge of every step (AffinitySpec.Edges, edges = [...] in
+// a spec).
+//
 // Properties of a network with numeric rates:
 //
 //   - stationary law pi (pi L = 0, sum pi = 1) by the Grassmann-Taksar-Heyman

@@ -20,7 +20,7 @@ const Hidden = -1
 // declared one-way edge. Each direction may carry a visible label.
 type Network struct {
 	States []string // state names, index = state number
-	Edges  []Edge   // undirected edges, no two joining the same pair
+	Edges  []Edge   // undirected edges; two may join the same pair (parallel channels)
 	Labels []Label  // visible labels; Edge.Label indexes this slice
 }
 
@@ -106,18 +106,19 @@ func (n *Network) Clone() *Network {
 }
 
 // Validate checks that the network is well formed: at least two states,
-// edge endpoints in range, no self-loops or duplicate edges, finite
+// edge endpoints in range, no self-loops, finite
 // non-negative rates with at least one direction positive per edge, label
 // indices in range, detection probabilities in (0, 1], and a strongly
 // connected graph of positive rates (so that the stationary law is unique
-// and positive). It returns all problems found, joined.
+// and positive). Parallel edges (two edges joining the same states) are
+// allowed: each is its own channel with its own rates and labels. It
+// returns all problems found, joined.
 func (n *Network) Validate() error {
 	var errs []error
 	k := len(n.States)
 	if k < 2 {
 		errs = append(errs, fmt.Errorf("network has %d states; need at least 2", k))
 	}
-	seen := make(map[[2]int]int)
 	for i, e := range n.Edges {
 		if e.From < 0 || e.From >= k || e.To < 0 || e.To >= k {
 			errs = append(errs, fmt.Errorf("edge[%d]: state index out of range", i))
@@ -126,11 +127,6 @@ func (n *Network) Validate() error {
 		if e.From == e.To {
 			errs = append(errs, fmt.Errorf("edge[%d]: self-loop at state %s", i, n.States[e.From]))
 		}
-		key := [2]int{min(e.From, e.To), max(e.From, e.To)}
-		if j, ok := seen[key]; ok {
-			errs = append(errs, fmt.Errorf("edge[%d]: duplicate of edge[%d] (%s-%s)", i, j, n.States[key[0]], n.States[key[1]]))
-		}
-		seen[key] = i
 		for d := 0; d < 2; d++ {
 			r := e.Rate[d]
 			if math.IsNaN(r) || math.IsInf(r, 0) || r < 0 {

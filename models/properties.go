@@ -3,6 +3,7 @@ package models
 import (
 	"fmt"
 	"math"
+	"strconv"
 )
 
 // Stationary returns the stationary distribution pi of the network
@@ -156,11 +157,76 @@ func (c Cycle) Names(states []string) string {
 	return s
 }
 
+// EdgeIndices returns the edge index of every step of the cycle, in order.
+// With parallel edges the states alone do not fix a cycle; the states and
+// these indices do (AffinitySpec.Edges takes them).
+func (c Cycle) EdgeIndices() []int {
+	out := make([]int, len(c.Steps))
+	for i, s := range c.Steps {
+		out[i] = s.Edge
+	}
+	return out
+}
+
+// Parallel returns the indices of the other edges that join the same two
+// states as edge e (none for a simple edge).
+func (n *Network) Parallel(e int) []int {
+	a, b := n.Edges[e].From, n.Edges[e].To
+	var out []int
+	for i, f := range n.Edges {
+		if i != e && ((f.From == a && f.To == b) || (f.From == b && f.To == a)) {
+			out = append(out, i)
+		}
+	}
+	return out
+}
+
+// CyclePath returns the cycle as a closed list of state names
+// [s0, s1, ..., s0] and, when a step runs along one of several parallel
+// edges (so that the states alone are ambiguous), the edge index of every
+// step, else nil: the Cycle and Edges of an AffinitySpec that names this
+// cycle (a Model's edges and its Network's share their indices).
+func (n *Network) CyclePath(c Cycle) (states []string, edges []int) {
+	for _, i := range c.States {
+		states = append(states, n.States[i])
+	}
+	if len(c.States) > 0 {
+		states = append(states, n.States[c.States[0]])
+	}
+	for _, st := range c.Steps {
+		if len(n.Parallel(st.Edge)) > 0 {
+			return states, c.EdgeIndices()
+		}
+	}
+	return states, nil
+}
+
+// CycleName returns the cycle's state names joined as "A-B-C-A" and, when
+// a step runs along one of several parallel edges (so that the states
+// alone are ambiguous), the edge index of every step: "A-B-A via edges 0, 2".
+func (n *Network) CycleName(c Cycle) string {
+	states, edges := n.CyclePath(c)
+	return AffinitySpec{Cycle: states, Edges: edges}.CycleName()
+}
+
+// joinInts writes xs as "0, 2, 1".
+func joinInts(xs []int) string {
+	s := ""
+	for i, x := range xs {
+		if i > 0 {
+			s += ", "
+		}
+		s += strconv.Itoa(x)
+	}
+	return s
+}
+
 // CycleBasis returns a basis of fundamental cycles: a breadth-first spanning
 // tree of the undirected graph is grown from state 0 and each edge outside
 // it (a chord) closes one cycle, oriented along the chord's From->To
 // direction. There are |E| - |V| + 1 cycles for a connected graph
-// (Schnakenberg, Rev. Mod. Phys. 48, 571 (1976), section V).
+// (Schnakenberg, Rev. Mod. Phys. 48, 571 (1976), section V); parallel
+// edges count, each parallel pair closing a cycle of two states.
 func (n *Network) CycleBasis() []Cycle {
 	k := len(n.States)
 	adj := make([][]Step, k) // step leaving each state

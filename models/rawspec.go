@@ -78,6 +78,25 @@ func (rd reader) strs(v any, key string) ([]string, bool) {
 	return out, true
 }
 
+// ints reads a non-empty list of integers (edge indices).
+func (rd reader) ints(v any, key string) ([]int, bool) {
+	list, ok := v.([]any)
+	if !ok || len(list) == 0 {
+		rd.bad(key, "want a list of edge indices (integers from 0, in the order of the [[edge]] tables), not %s", typeName(v))
+		return nil, false
+	}
+	out := make([]int, len(list))
+	for i, x := range list {
+		n, ok := x.(int64)
+		if !ok || n < 0 || n > math.MaxInt32 {
+			rd.bad(key, "item %d: want an edge index (an integer from 0), not %v", i+1, x)
+			return nil, false
+		}
+		out[i] = int(n)
+	}
+	return out, true
+}
+
 func (rd reader) num(v any, key string) (*float64, bool) {
 	switch x := v.(type) {
 	case float64:
@@ -215,10 +234,13 @@ func readRaw(doc map[string]any, bad func(key, format string, a ...any)) rawSpec
 		ts, _ := rd.tables(v, "affinity")
 		for i, t := range ts {
 			key := fmt.Sprintf("affinity[%d]", i)
-			rd.known(t, key, "cycle", "value", "solve")
+			rd.known(t, key, "cycle", "edges", "value", "solve")
 			var a rawAffinity
 			if v, ok := t["cycle"]; ok {
 				a.Cycle, _ = rd.strs(v, key+".cycle")
+			}
+			if v, ok := t["edges"]; ok {
+				a.Edges, _ = rd.ints(v, key+".edges")
 			}
 			if v, ok := t["value"]; ok {
 				a.Value, _ = rd.num(v, key+".value")

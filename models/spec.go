@@ -33,6 +33,7 @@ import (
 //	                         # name of a parameter to fit: detect = "p"
 //	[[affinity]]
 //	cycle = ["A", "B", "C", "A"]  # a cycle of the network
+//	edges = [0, 1, 2]             # optional: the edge of each step
 //	value = 4.0                   # its affinity in k_BT
 //	solve = "m1"                  # the rate solved from the others
 //
@@ -40,11 +41,24 @@ import (
 // along the cycle. It is enforced by computing the solved rate from the
 // others, so it holds exactly for every parameter vector; a solved rate is
 // neither free nor fixed and has no [param] table.
+//
+// Parallel edges: two [[edge]] tables may join the same two states (a
+// mechanical step and a futile slip; a visible edge and a hidden channel
+// beside it; the two halves of a two-state periodic scheme). Each is its
+// own channel with its own rate names and labels; only an exact repeat
+// (same states, rate names and labels in the same directions) is refused.
+// Edges are numbered from 0 in file order, as in the keys edge[0],
+// edge[1], ... of error messages. When a step of an affinity cycle joins
+// two states that several edges join, the state list does not say which
+// edge the cycle takes: edges = [...] then gives the edge index of every
+// step (one entry per step, len(cycle) - 1 entries for the closed list).
+// A cycle of two states, A-B-A, runs out along one parallel edge and back
+// along another: cycle = ["A", "B", "A"], edges = [0, 3].
 type Model struct {
 	Name        string
 	Description string
 	States      []string
-	Edges       []EdgeSpec
+	Edges       []EdgeSpec  // in file order: Edges[i] is edge[i] of the spec
 	Params      []Param     // declared parameters, sorted by name
 	Labels      []LabelSpec // labels, sorted by name
 	Affinities  []AffinitySpec
@@ -89,8 +103,12 @@ type LabelSpec struct {
 // AffinitySpec is a cycle-affinity constraint.
 type AffinitySpec struct {
 	Cycle []string // states of a cycle, closed: Cycle[0] == Cycle[len-1]
-	Value float64  // affinity in k_BT
-	Solve string   // the rate parameter computed from the constraint
+	// Edges, when not nil, gives the index into Model.Edges of every step
+	// (len(Cycle) - 1 entries): needed when a step joins two states that
+	// parallel edges join, optional (and checked) otherwise.
+	Edges []int
+	Value float64 // affinity in k_BT
+	Solve string  // the rate parameter computed from the constraint
 }
 
 // SpecError is one problem in a model spec, located by file, line and key.
@@ -124,6 +142,7 @@ type rawSpec struct {
 
 type rawAffinity struct {
 	Cycle []string `toml:"cycle"`
+	Edges []int    `toml:"edges"`
 	Value *float64 `toml:"value"`
 	Solve string   `toml:"solve"`
 }
@@ -186,7 +205,8 @@ func Parse(r io.Reader, file string) (*Model, error) {
 	}
 	used := map[string]bool{}
 	usedLabel := map[string]bool{}
-	pairs := map[[2]string]int{}
+	type edgeKey struct{ between, rates, labels [2]string }
+	repeats := map[edgeKey]int{}
 	for i, e := range raw.Edge {
 		key := fmt.Sprintf("edge[%d]", i)
 		var es EdgeSpec
@@ -204,11 +224,6 @@ func Parse(r io.Reader, file string) (*Model, error) {
 		if e.Between[0] == e.Between[1] {
 			bad(key+".between", "self-loop at state %q", e.Between[0])
 		}
-		pk := [2]string{min(e.Between[0], e.Between[1]), max(e.Between[0], e.Between[1])}
-		if j, dup := pairs[pk]; dup {
-			bad(key+".between", "duplicate of edge[%d] (%s-%s)", j, pk[0], pk[1])
-		}
-		pairs[pk] = i
 		want := 2
 		if e.OneWay {
 			want = 1
@@ -242,6 +257,21 @@ func Parse(r io.Reader, file string) (*Model, error) {
 				bad(key+".labels", "label \"end\" is reserved: in records files a row labelled end gives the record's end time")
 			}
 			usedLabel[l] = true
+		}
+		// Parallel edges are distinct channels; an edge that repeats
+		// another in every respect (read in either direction) is a slip
+		// of the pen: the two would act as one channel of twice the rate.
+		ek := edgeKey{es.Between, es.Rates, es.Labels}
+		if !es.OneWay {
+			rk := edgeKey{[2]string{es.Between[1], es.Between[0]}, [2]string{es.Rates[1], es.Rates[0]}, [2]string{es.Labels[1], es.Labels[0]}}
+			if rk.between[0] < ek.between[0] {
+				ek = rk
+			}
+		}
+		if j, dup := repeats[ek]; dup {
+			bad(key, "repeats edge[%d] (%s-%s): same states, rate names and labels; a parallel channel needs its own rate names (one edge with the summed rate is the same model)", j, es.Between[0], es.Between[1])
+		} else {
+			repeats[ek] = i
 		}
 		m.Edges = append(m.Edges, es)
 	}
@@ -347,7 +377,7 @@ func Parse(r io.Reader, file string) (*Model, error) {
 	if len(errs) == 0 {
 		for i, a := range raw.Affinity {
 			key := fmt.Sprintf("affinity[%d]", i)
-			as := AffinitySpec{Cycle: a.Cycle, Solve: a.Solve}
+			as := AffinitySpec{Cycle: a.Cycle, Edges: a.Edges, Solve: a.Solve}
 			if a.Value == nil {
 				bad(key, "missing value (the cycle affinity in k_BT)")
 				continue

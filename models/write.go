@@ -100,7 +100,15 @@ func (m *Model) Write(w io.Writer) error {
 		}
 	}
 	for _, a := range m.Affinities {
-		fmt.Fprintf(bw, "\n[[affinity]]\ncycle = %s\nvalue = %s\nsolve = %s\n", list(a.Cycle), f(a.Value), q(a.Solve))
+		fmt.Fprintf(bw, "\n[[affinity]]\ncycle = %s\n", list(a.Cycle))
+		if a.Edges != nil {
+			idx := make([]string, len(a.Edges))
+			for i, e := range a.Edges {
+				idx[i] = strconv.Itoa(e)
+			}
+			fmt.Fprintf(bw, "edges = [%s]\n", strings.Join(idx, ", "))
+		}
+		fmt.Fprintf(bw, "value = %s\nsolve = %s\n", f(a.Value), q(a.Solve))
 	}
 	return bw.Flush()
 }

@@ -57,7 +57,7 @@ func cmdDescribe(args []string, stdout, stderr io.Writer) int {
 		st.Rows = append(st.Rows, []string{s, g(pi[i])})
 	}
 	cur := net.Currents(pi)
-	et := table{Title: "Edges (current in the direction from->to, 1/time)", Columns: []string{"from", "to", "rate from->to", "rate to->from", "labels", "current", "ln(w/w')"}}
+	et := table{Title: "Edges (current in the direction from->to, 1/time)", Columns: []string{"edge", "from", "to", "rate from->to", "rate to->from", "labels", "current", "ln(w/w')"}}
 	for i, e := range net.Edges {
 		lab := func(d int) string {
 			if e.Label[d] == models.Hidden {
@@ -65,7 +65,7 @@ func cmdDescribe(args []string, stdout, stderr io.Writer) int {
 			}
 			return net.Labels[e.Label[d]].Name
 		}
-		et.Rows = append(et.Rows, []string{net.States[e.From], net.States[e.To], g(e.Rate[0]), g(e.Rate[1]), lab(0) + " / " + lab(1), g(cur[i]), g(net.EdgeAffinity(i))})
+		et.Rows = append(et.Rows, []string{fmt.Sprint(i), net.States[e.From], net.States[e.To], g(e.Rate[0]), g(e.Rate[1]), lab(0) + " / " + lab(1), g(cur[i]), g(net.EdgeAffinity(i))})
 	}
 	ct := table{Title: "Fundamental cycles", Columns: []string{"cycle", "affinity (k_BT)", "cycle current"}}
 	for _, c := range net.CycleBasis() {
@@ -73,7 +73,7 @@ func cmdDescribe(args []string, stdout, stderr io.Writer) int {
 		if math.IsNaN(net.Affinity(c)) {
 			a = "undefined (one-way edges in both senses)"
 		}
-		ct.Rows = append(ct.Rows, []string{c.Names(net.States), a, g(cur[c.Chord])})
+		ct.Rows = append(ct.Rows, []string{net.CycleName(c), a, g(cur[c.Chord])})
 	}
 	sigma := net.EntropyProduction(pi)
 	db, worst := net.DetailedBalance(1e-10)
@@ -138,7 +138,7 @@ func modelTables(m *models.Model) []table {
 	if len(m.Affinities) > 0 {
 		at := table{Title: "Affinity constraints", Columns: []string{"constraint", "cycle", "affinity (k_BT)", "solved rate"}}
 		for i, a := range m.Affinities {
-			at.Rows = append(at.Rows, []string{fmt.Sprintf("affinity[%d]", i), strings.Join(a.Cycle, "-"), g(a.Value), a.Solve})
+			at.Rows = append(at.Rows, []string{fmt.Sprintf("affinity[%d]", i), a.CycleName(), g(a.Value), a.Solve})
 		}
 		tables = append(tables, at)
 	}
