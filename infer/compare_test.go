@@ -1,26 +1,9 @@
 package infer
 
 import (
-	"os"
 	"strings"
 	"testing"
-
-	"edgewise/models"
 )
-
-func readSpec(tb testing.TB, path string) *models.Model {
-	tb.Helper()
-	f, err := os.Open(path)
-	if err != nil {
-		tb.Fatal(err)
-	}
-	defer f.Close()
-	m, err := models.Parse(f, path)
-	if err != nil {
-		tb.Fatal(err)
-	}
-	return m
-}
 
 // Records from a two-cycle scheme whose driven cycle runs off the visible
 // edge: the shape test of the data rejects, so every ring (its

@@ -63,7 +63,7 @@ func recRing(u, w []float64, p float64) *models.Network {
 // recModel loads a shipped model spec at its start values.
 func recModel(tb testing.TB, path string) *models.Network {
 	tb.Helper()
-	m := parseSpec(tb, path)
+	m := readSpec(tb, path)
 	net, err := m.Network(m.Start())
 	if err != nil {
 		tb.Fatal(err)

@@ -270,7 +270,7 @@ solve = "m6"
 // along the visible edge and back along the hidden one. Every constraint
 // is checked on the numeric rates along the named edges.
 func TestTightCouplingParallel(t *testing.T) {
-	m := parseSpec(t, "../testdata/twostate-parallel.toml")
+	m := readSpec(t, "../testdata/twostate-parallel.toml")
 	paths, err := VisibleCyclePaths(m, "+")
 	if err != nil {
 		t.Fatal(err)
@@ -293,7 +293,7 @@ func TestTightCouplingParallel(t *testing.T) {
 		t.Errorf("two-state cycle affinity %g, want 3", a)
 	}
 
-	loop := parseSpec(t, "../testdata/ring3.toml")
+	loop := readSpec(t, "../testdata/ring3.toml")
 	loop.Edges = append(loop.Edges, models.EdgeSpec{Between: [2]string{"C", "B"}, Rates: [2]string{"kcb", "kbc"}})
 	loop.Edges[3].Rates = [2]string{"scb", "sbc"}
 	loop.Params = append(loop.Params, models.Param{Name: "scb", Value: 0.3, Upper: math.Inf(1)}, models.Param{Name: "sbc", Value: 0.2, Upper: math.Inf(1)})
@@ -345,8 +345,8 @@ func TestTightCouplingParallel(t *testing.T) {
 	}
 }
 
-// parseSpec reads a model spec file.
-func parseSpec(tb testing.TB, path string) *models.Model {
+// readSpec reads a model spec file.
+func readSpec(tb testing.TB, path string) *models.Model {
 	tb.Helper()
 	f, err := os.Open(path)
 	if err != nil {
