@@ -189,7 +189,7 @@ func writeLaTeXTable(w io.Writer, t *Table) {
 	var parts [][]int
 	var cur []int
 	used := lw
-	for j := range n {
+	for _, j := range p.shown {
 		if len(cur) > 0 && used+2+cw[j] > latexWidth {
 			parts = append(parts, cur)
 			cur, used = nil, lw

@@ -7,7 +7,7 @@ import (
 )
 
 // mdEscape escapes what would break a pipe table or start markup.
-var mdEscape = strings.NewReplacer("|", `\|`, "*", `\*`, "_", `\_`, "<", "&lt;", ">", "&gt;", "\n", " ", "\r", " ").Replace
+var mdEscape = strings.NewReplacer("|", `\|`, "*", `\*`, "_", `\_`, "<", "&lt;", "\n", " ", "\r", " ").Replace
 
 func mdHeader(c Column) string {
 	s := mdEscape(c.Label)
@@ -24,7 +24,8 @@ func renderMarkdown(w io.Writer, r *Report) error {
 		fmt.Fprintf(w, "**%s**\n\n", mdEscape(t.Title))
 		head := []string{mdEscape(t.RowHeader)}
 		rule := []string{"---"}
-		for j, c := range t.Columns {
+		for _, j := range p.shown {
+			c := t.Columns[j]
 			head = append(head, mdHeader(c))
 			align := "---"
 			for i := range t.Rows {
@@ -37,7 +38,8 @@ func renderMarkdown(w io.Writer, r *Report) error {
 		fmt.Fprintf(w, "| %s |\n|%s|\n", strings.Join(head, " | "), strings.Join(rule, "|"))
 		for i, row := range t.Rows {
 			cells := []string{mdEscape(row.Label)}
-			for _, c := range p.cells[i] {
+			for _, j := range p.shown {
+				c := p.cells[i][j]
 				s := mdEscape(c.human())
 				if c.foot != "" {
 					s += "<sup>" + c.foot + "</sup>"

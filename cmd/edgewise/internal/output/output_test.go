@@ -225,7 +225,7 @@ func TestShowSample(t *testing.T) {
 
 // TestKey: machine keys from labels.
 func TestKey(t *testing.T) {
-	for in, want := range map[string]string{"P(+|+)": "P_plus_plus", "F": "F", "+": "plus", "A>B": "A_B", "ln L per gap": "ln_L_per_gap", "n_++": "n_plus_plus"} {
+	for in, want := range map[string]string{"P(+|+)": "P_plus_plus", "F": "F", "+": "plus", "A>B": "A_B", "ln L per gap": "ln_L_per_gap", "n_++": "n_plus_plus", "post-selected": "post_selected", "P(-|-)": "P_minus_minus", "-": "minus"} {
 		if got := Key(in); got != want {
 			t.Errorf("Key(%q) = %q, want %q", in, got, want)
 		}

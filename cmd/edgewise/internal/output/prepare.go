@@ -23,6 +23,7 @@ type prepTable struct {
 	cells [][]prepCell
 	feet  []string // footnote texts, lettered a, b, ... in order
 	moved []string // texts moved out of cells, numbered 1, 2, ...
+	shown []int    // columns with at least one non-empty cell
 }
 
 // letter returns the i-th footnote letter: a..z, then aa, ab, ...
@@ -69,6 +70,19 @@ func prepare(t *Table, maxText int) *prepTable {
 				pc.moved = moved[txt]
 			}
 			p.cells[i][j] = pc
+		}
+	}
+	for j := range t.Columns {
+		for _, r := range t.Rows {
+			if r.Cells[j].Kind != KindEmpty {
+				p.shown = append(p.shown, j)
+				break
+			}
+		}
+	}
+	if len(t.Rows) == 0 {
+		for j := range t.Columns {
+			p.shown = append(p.shown, j)
 		}
 	}
 	return p

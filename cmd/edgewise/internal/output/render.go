@@ -204,7 +204,7 @@ func writeTerminalTable(w io.Writer, t *Table, W int) {
 	var parts [][]int
 	var cur []int
 	used := lw
-	for j := range n {
+	for _, j := range p.shown {
 		if len(cur) > 0 && used+gap+cw[j] > W {
 			parts = append(parts, cur)
 			cur, used = nil, lw

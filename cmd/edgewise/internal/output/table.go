@@ -162,10 +162,20 @@ func (r *Report) Note(format string, a ...any) {
 }
 
 // Key turns a label into a machine key: letters, digits and underscores,
-// with "+" written plus and "-" minus, e.g. Key("P(+|+)") = "P_plus_plus".
+// with "+" written plus and a "-" that is not a hyphen inside a word
+// written minus, e.g. Key("P(+|+)") = "P_plus_plus", Key("post-selected")
+// = "post_selected".
 func Key(label string) string {
 	var b strings.Builder
 	under := false
+	rs := []rune(label)
+	alnum := func(i int) bool {
+		if i < 0 || i >= len(rs) {
+			return false
+		}
+		r := rs[i]
+		return r >= 'a' && r <= 'z' || r >= 'A' && r <= 'Z' || r >= '0' && r <= '9'
+	}
 	put := func(s string) {
 		if b.Len() > 0 && !under {
 			b.WriteByte('_')
@@ -173,14 +183,14 @@ func Key(label string) string {
 		b.WriteString(s)
 		under = false
 	}
-	for _, r := range label {
+	for i, r := range rs {
 		switch {
 		case r >= 'a' && r <= 'z', r >= 'A' && r <= 'Z', r >= '0' && r <= '9':
 			b.WriteRune(r)
 			under = false
 		case r == '+':
 			put("plus")
-		case r == '-':
+		case r == '-' && !(alnum(i-1) && alnum(i+1)):
 			put("minus")
 		default:
 			if b.Len() > 0 && !under {
