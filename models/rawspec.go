@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 	"strings"
+	"unicode"
 )
 
 // The TOML document is first decoded into generic values and then read
@@ -149,12 +150,15 @@ func (rd reader) tables(v any, key string) ([]map[string]any, bool) {
 func readRaw(doc map[string]any, bad func(key, format string, a ...any)) rawSpec {
 	rd := reader{bad: bad}
 	var raw rawSpec
-	rd.known(doc, "", "name", "description", "states", "edge", "param", "label", "affinity")
+	rd.known(doc, "", "name", "description", "time_unit", "states", "edge", "param", "label", "affinity")
 	if v, ok := doc["name"]; ok {
 		raw.Name, _ = rd.str(v, "name")
 	}
 	if v, ok := doc["description"]; ok {
 		raw.Description, _ = rd.str(v, "description")
+	}
+	if v, ok := doc["time_unit"]; ok {
+		raw.TimeUnit, _ = rd.str(v, "time_unit")
 	}
 	if v, ok := doc["states"]; ok {
 		raw.States, _ = rd.strs(v, "states")
@@ -282,3 +286,18 @@ func badName(s string) string {
 const minRate = 0x1p-1022
 
 func finitePositive(v float64) bool { return v >= minRate && !math.IsInf(v, 0) }
+
+// goodTimeUnit reports whether u is empty or a unit name of 1 to 16
+// letters, digits, '.' or '_' (no spaces or slashes, which would make a
+// unit such as 1/ms ambiguous).
+func goodTimeUnit(u string) bool {
+	if len([]rune(u)) > 16 {
+		return false
+	}
+	for _, r := range u {
+		if !unicode.IsLetter(r) && !unicode.IsDigit(r) && r != '.' && r != '_' {
+			return false
+		}
+	}
+	return true
+}

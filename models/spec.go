@@ -18,6 +18,7 @@ import (
 // name on two rates ties them. It is read from a TOML spec:
 //
 //	name = "ring3"
+//	time_unit = "ms"         # optional: rates in 1/ms
 //	states = ["A", "B", "C"]
 //	[[edge]]
 //	between = ["A", "B"]     # direction 0 is A->B
@@ -57,11 +58,14 @@ import (
 type Model struct {
 	Name        string
 	Description string
-	States      []string
-	Edges       []EdgeSpec  // in file order: Edges[i] is edge[i] of the spec
-	Params      []Param     // declared parameters, sorted by name
-	Labels      []LabelSpec // labels, sorted by name
-	Affinities  []AffinitySpec
+	// TimeUnit names the unit of time of the rates (key time_unit, e.g.
+	// "ms"): rates are in 1/TimeUnit. Empty when the spec does not say.
+	TimeUnit   string
+	States     []string
+	Edges      []EdgeSpec  // in file order: Edges[i] is edge[i] of the spec
+	Params     []Param     // declared parameters, sorted by name
+	Labels     []LabelSpec // labels, sorted by name
+	Affinities []AffinitySpec
 }
 
 // EdgeSpec is one edge of a Model.
@@ -133,6 +137,7 @@ func (e *SpecError) Error() string {
 type rawSpec struct {
 	Name        string              `toml:"name"`
 	Description string              `toml:"description"`
+	TimeUnit    string              `toml:"time_unit"`
 	States      []string            `toml:"states"`
 	Edge        []rawEdge           `toml:"edge"`
 	Param       map[string]rawParam `toml:"param"`
@@ -189,7 +194,10 @@ func Parse(r io.Reader, file string) (*Model, error) {
 		errs = append(errs, &SpecError{File: file, Line: loc.line(key), Key: key, Msg: fmt.Sprintf(format, a...)})
 	}
 	raw := readRaw(doc, bad)
-	m := &Model{Name: raw.Name, Description: raw.Description, States: raw.States}
+	m := &Model{Name: raw.Name, Description: raw.Description, TimeUnit: raw.TimeUnit, States: raw.States}
+	if !goodTimeUnit(raw.TimeUnit) {
+		bad("time_unit", "%q: want 1 to 16 letters or digits, e.g. \"ms\"", raw.TimeUnit)
+	}
 	index := map[string]int{}
 	for i, s := range raw.States {
 		if why := badName(s); why != "" {

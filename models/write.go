@@ -64,6 +64,9 @@ func (m *Model) Write(w io.Writer) error {
 	if m.Description != "" {
 		fmt.Fprintf(bw, "description = %s\n", q(m.Description))
 	}
+	if m.TimeUnit != "" {
+		fmt.Fprintf(bw, "time_unit = %s\n", q(m.TimeUnit))
+	}
 	fmt.Fprintf(bw, "states = %s\n", list(m.States))
 	for _, e := range m.Edges {
 		fmt.Fprintf(bw, "\n[[edge]]\nbetween = %s\n", list(e.Between[:]))

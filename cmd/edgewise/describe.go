@@ -6,6 +6,7 @@ import (
 	"math"
 	"strings"
 
+	"edgewise/cmd/edgewise/internal/output"
 	"edgewise/models"
 )
 
@@ -15,7 +16,9 @@ Print a model and its properties at its start values: parameters (free,
 fixed or solved from an affinity constraint, with bounds), labels with
 their detection probabilities, the affinity constraints, the stationary
 law, edge currents, fundamental cycles with their affinities (k_BT), and
-the entropy production rate (k_B per unit time).
+the entropy production rate. Rates are in 1/time, in the spec's
+time_unit or --time-unit when named. At detailed balance (every cycle
+affinity below 1e-10 in size) currents and sigma are exactly 0.
 
 Example:
   edgewise describe testdata/ring3.toml --format markdown
@@ -24,40 +27,62 @@ Options:
 `
 
 func cmdDescribe(args []string, stdout, stderr io.Writer) int {
-	fs := newFlags("describe", describeHelp, args, stdout, stderr)
-	format := fs.StringP("format", "f", "table", "output format: "+formats)
-	out := fs.StringP("output", "o", "-", "output file (- for standard output)")
-	force := fs.Bool("force", false, "overwrite an existing output file")
-	if code := parseFlags(fs, args); code >= 0 {
+	c := newCommand("describe", describeHelp, args, stdout, stderr)
+	c.outputFlags(true)
+	c.timeUnitFlag()
+	if code := c.parse(); code >= 0 {
 		return code
 	}
-	if fs.NArg() != 1 {
-		fs.Usage()
-		return 2
+	if c.fs.NArg() != 1 {
+		return c.usage("want one model spec, got %d arguments", c.fs.NArg())
 	}
-	if !validFormat(*format) {
-		fmt.Fprintf(stderr, "edgewise: unknown format %q (want %s)\n", *format, formats)
-		return 2
+	if _, err := c.outputFormat(); err != nil {
+		return c.usage("%v", err)
 	}
-	path := fs.Arg(0)
+	if err := checkTimeUnit(*c.timeUnit); err != nil {
+		return c.usage("%v", err)
+	}
+	files := output.NewFiles(stdout, *c.force)
+	defer files.Close()
+	if err := files.Claim("-o", *c.out); err != nil {
+		return c.fail(1, err)
+	}
+	path := c.fs.Arg(0)
 	src, m, net, err := loadModel(path)
 	if err != nil {
-		fmt.Fprintf(stderr, "edgewise: %v\n", err)
-		return 1
+		return c.fail(1, err)
 	}
+	unit, unitNote := c.resolveTimeUnit(m.TimeUnit, "")
+	r := c.newReport([]output.Input{{Name: path, SHA256: checksum(src)}}, nil, unit)
+	if unitNote != "" {
+		r.Note("%s", unitNote)
+	}
+	if err := describeTables(r, m, net, unit); err != nil {
+		return c.fail(1, err)
+	}
+	if err := c.emitReport(files, r); err != nil {
+		return c.fail(1, err)
+	}
+	return 0
+}
+
+// describeTables adds the model's tables and its properties.
+func describeTables(r *output.Report, m *models.Model, net *models.Network, u output.TimeUnit) error {
 	pi, err := net.Stationary()
 	if err != nil {
-		fmt.Fprintf(stderr, "edgewise: %v\n", err)
-		return 1
+		return err
 	}
-	g := num
-	r := &report{Tool: "edgewise " + version, Command: "describe", Input: path, Checksum: checksum(src)}
-	st := table{Title: "Stationary law", Columns: []string{"state", "probability"}}
+	r.Add(modelTables(m, u)...)
+	db, worst := net.DetailedBalance(1e-10)
+	st := output.NewTable("stationary", "Stationary law", "state", output.Col("probability", "probability", ""))
 	for i, s := range net.States {
-		st.Rows = append(st.Rows, []string{s, g(pi[i])})
+		st.Add(output.Key(s), s, output.Num(pi[i]))
 	}
 	cur := net.Currents(pi)
-	et := table{Title: "Edges (current in the direction from->to, 1/time)", Columns: []string{"edge", "from", "to", "rate from->to", "rate to->from", "labels", "current", "ln(w/w')"}}
+	et := output.NewTable("edges", "Edges (current in the direction from -> to)", "edge",
+		output.Col("from", "from", ""), output.Col("to", "to", ""),
+		output.Col("rate_forward", "rate from->to", u.Rate()), output.Col("rate_backward", "rate to->from", u.Rate()),
+		output.Col("labels", "labels", ""), output.Col("current", "current", u.Rate()), output.Col("log_rate_ratio", "ln(w/w')", "k_BT"))
 	for i, e := range net.Edges {
 		lab := func(d int) string {
 			if e.Label[d] == models.Hidden {
@@ -65,64 +90,76 @@ func cmdDescribe(args []string, stdout, stderr io.Writer) int {
 			}
 			return net.Labels[e.Label[d]].Name
 		}
-		et.Rows = append(et.Rows, []string{fmt.Sprint(i), net.States[e.From], net.States[e.To], g(e.Rate[0]), g(e.Rate[1]), lab(0) + " / " + lab(1), g(cur[i]), g(net.EdgeAffinity(i))})
+		from, to := net.States[e.From], net.States[e.To]
+		et.Add(fmt.Sprintf("edge_%d", i), fmt.Sprintf("%d: %s-%s", i, from, to),
+			output.Text(from), output.Text(to), output.Num(e.Rate[0]), output.Num(e.Rate[1]),
+			output.Text(lab(0)+" / "+lab(1)), output.ZeroIf(cur[i], db), output.Num(net.EdgeAffinity(i)))
 	}
-	ct := table{Title: "Fundamental cycles", Columns: []string{"cycle", "affinity (k_BT)", "cycle current"}}
-	for _, c := range net.CycleBasis() {
-		a := g(net.Affinity(c))
-		if math.IsNaN(net.Affinity(c)) {
-			a = "undefined (one-way edges in both senses)"
+	ct := output.NewTable("cycles", "Fundamental cycles", "cycle", output.Col("affinity", "affinity", "k_BT"), output.Col("current", "cycle current", u.Rate()))
+	for i, cy := range net.CycleBasis() {
+		a := output.Num(net.Affinity(cy))
+		if math.IsNaN(net.Affinity(cy)) {
+			a = output.Undefined("one-way edges in both senses")
+		} else if db {
+			a = output.ZeroIf(net.Affinity(cy), math.Abs(net.Affinity(cy)) == 0)
 		}
-		ct.Rows = append(ct.Rows, []string{net.CycleName(c), a, g(cur[c.Chord])})
+		ct.Add(fmt.Sprintf("cycle_%d", i+1), net.CycleName(cy), a, output.ZeroIf(cur[cy.Chord], db))
 	}
 	sigma := net.EntropyProduction(pi)
-	db, worst := net.DetailedBalance(1e-10)
-	sum := table{Title: "Summary", Columns: []string{"quantity", "value"}, Rows: [][]string{
-		{"entropy production sigma (k_B/time)", g(sigma)},
-		{"detailed balance", fmt.Sprintf("%v (max |cycle affinity| %s)", db, strings.Replace(g(worst), "NaN", "undefined", 1))},
-	}}
-	r.Tables = append(modelTables(m), st, et, ct, sum)
+	sum := output.NewTable("summary", "Summary", "quantity", output.Col("value", "value", ""), output.Col("unit", "unit", ""))
+	sum.Add("sigma", "entropy production sigma", output.ZeroIf(sigma, db), output.Text(u.Entropy()))
+	dbText := "no"
+	if db {
+		dbText = "yes"
+	}
+	sum.Add("detailed_balance", "detailed balance", output.Text(dbText), output.Empty())
+	w := output.Num(worst)
+	if math.IsNaN(worst) {
+		w = output.Undefined("one-way edges in both senses")
+	}
+	sum.Add("max_abs_cycle_affinity", "max |cycle affinity|", w, output.Text("k_BT"))
+	r.Add(st, et, ct, sum)
+	if db {
+		r.Note("every cycle affinity is below 1e-10 in size: detailed balance, so currents and sigma are exactly 0 (the numbers would be round-off)")
+	}
 	if math.IsInf(sigma, 1) {
-		r.Notes = append(r.Notes, "a one-way edge carries current: every affinity through it is infinite")
+		r.Note("a one-way edge carries current: every affinity through it is infinite")
 	}
-	if err := emit(*out, *force, stdout, func(w io.Writer) error { return r.write(w, *format) }); err != nil {
-		fmt.Fprintf(stderr, "edgewise: %v\n", err)
-		return 1
-	}
-	return 0
+	return nil
 }
 
 // modelTables shows a model's parameters, labels and affinity constraints.
-func modelTables(m *models.Model) []table {
-	g := num
-	pt := table{Title: "Parameters (rates in 1/time, detection probabilities without unit)", Columns: []string{"name", "kind", "value", "status", "lower", "upper"}}
+func modelTables(m *models.Model, u output.TimeUnit) []*output.Table {
+	pt := output.NewTable("parameters", "Parameters", "name",
+		output.Col("kind", "kind", ""), output.Col("value", "value", ""), output.Col("unit", "unit", ""),
+		output.Col("status", "status", ""), output.Col("lower", "lower", ""), output.Col("upper", "upper", ""))
 	for _, p := range m.Params {
-		kind, status := "rate", "free"
+		kind, status, unit := "rate", "free", u.Rate()
 		if p.Kind == models.DetectParam {
-			kind = "detection"
+			kind, unit = "detection", ""
 		}
 		if p.Fixed {
 			status = "fixed"
 		}
-		lo, hi := g(p.Lower), g(p.Upper)
+		lo, hi := output.Num(p.Lower), output.Num(p.Upper)
 		if p.Fixed {
-			lo, hi = "", "" // bounds apply to fitting only
+			lo, hi = output.Empty(), output.Empty() // bounds apply to fitting only
 		}
-		pt.Rows = append(pt.Rows, []string{p.Name, kind, g(p.Value), status, lo, hi})
+		pt.Add(output.Key(p.Name), p.Name, output.Text(kind), output.Num(p.Value), output.Text(unit), output.Text(status), lo, hi)
 	}
 	vals, err := m.Values(m.Start())
 	for i, a := range m.Affinities {
-		v := "?"
+		v := output.Undefined("cannot be solved at the start values")
 		if err == nil {
-			v = g(vals[a.Solve])
+			v = output.Num(vals[a.Solve])
 		}
-		pt.Rows = append(pt.Rows, []string{a.Solve, "rate", v, fmt.Sprintf("solved (affinity[%d])", i), "", ""})
+		pt.Add(output.Key(a.Solve), a.Solve, output.Text("rate"), v, output.Text(u.Rate()), output.Text(fmt.Sprintf("solved (affinity[%d])", i)), output.Empty(), output.Empty())
 	}
-	lt := table{Title: "Labels", Columns: []string{"label", "detection", "transitions"}}
+	lt := output.NewTable("labels", "Labels", "label", output.Col("detection", "detection", ""), output.Col("transitions", "transitions", ""))
 	for _, l := range m.Labels {
-		d := g(l.Detect)
+		d := output.Num(l.Detect)
 		if l.Param != "" {
-			d = "parameter " + l.Param
+			d = output.Text("parameter " + l.Param)
 		}
 		var on []string
 		for _, e := range m.Edges {
@@ -132,13 +169,14 @@ func modelTables(m *models.Model) []table {
 				}
 			}
 		}
-		lt.Rows = append(lt.Rows, []string{l.Name, d, strings.Join(on, ", ")})
+		lt.Add(output.Key(l.Name), l.Name, d, output.Text(strings.Join(on, ", ")))
 	}
-	tables := []table{pt, lt}
+	tables := []*output.Table{pt, lt}
 	if len(m.Affinities) > 0 {
-		at := table{Title: "Affinity constraints", Columns: []string{"constraint", "cycle", "affinity (k_BT)", "solved rate"}}
+		at := output.NewTable("affinity_constraints", "Affinity constraints", "constraint",
+			output.Col("cycle", "cycle", ""), output.Col("affinity", "affinity", "k_BT"), output.Col("solve", "solved rate", ""))
 		for i, a := range m.Affinities {
-			at.Rows = append(at.Rows, []string{fmt.Sprintf("affinity[%d]", i), a.CycleName(), g(a.Value), a.Solve})
+			at.Add(fmt.Sprintf("affinity_%d", i), fmt.Sprintf("affinity[%d]", i), output.Text(a.CycleName()), output.Num(a.Value), output.Text(a.Solve))
 		}
 		tables = append(tables, at)
 	}

@@ -9,9 +9,11 @@ import (
 	"strconv"
 	"strings"
 
+	"edgewise/cmd/edgewise/internal/output"
 	"edgewise/infer"
 	"edgewise/likelihood"
 
+	"github.com/spf13/pflag"
 	"gonum.org/v1/plot"
 	"gonum.org/v1/plot/plotter"
 	"gonum.org/v1/plot/vg"
@@ -51,22 +53,61 @@ func newFigPlot(title, xlabel, ylabel string) *plot.Plot {
 	p.Title.Text = title
 	p.X.Label.Text = xlabel
 	p.Y.Label.Text = ylabel
-	p.Title.TextStyle.Font.Size = vg.Points(11)
+	p.Title.TextStyle.Font.Size = vg.Points(8.5)
+	p.Title.Padding = vg.Points(4)
 	for _, a := range []*plot.Axis{&p.X, &p.Y} {
-		a.Label.TextStyle.Font.Size = vg.Points(10)
-		a.Tick.Label.Font.Size = vg.Points(9)
+		a.Label.TextStyle.Font.Size = vg.Points(8)
+		a.Tick.Label.Font.Size = vg.Points(7)
 		a.LineStyle.Width = vg.Points(0.6)
 		a.Tick.LineStyle.Width = vg.Points(0.6)
 	}
-	p.Legend.TextStyle.Font.Size = vg.Points(8.5)
+	p.Legend.TextStyle.Font.Size = vg.Points(7)
 	p.Legend.Top = true
 	p.Legend.Left = true
+	p.Legend.Padding = vg.Points(3)
+	p.Legend.XOffs, p.Legend.YOffs = vg.Points(-3), vg.Points(-3)
 	return p
 }
 
-// writeFigure draws the plots in one row of panels and writes them to
-// path atomically (writeAtomic: no overwrite without force).
-func writeFigure(path string, force bool, plots []*plot.Plot, panelW, h vg.Length) error {
+// figureFlags are the figure options: the files and their width.
+type figureFlags struct {
+	plot, hist, pn *string
+	width          *float64
+}
+
+func addFigureFlags(fs *pflag.FlagSet) figureFlags {
+	return figureFlags{
+		plot:  fs.String("plot", "", "write the fluctuation plot to this file (.png, .svg, .pdf)"),
+		hist:  fs.String("hist", "", "write the inter-transition time densities to this file"),
+		pn:    fs.String("pn", "", "write the P_n(c) plots to this file"),
+		width: fs.Float64("figure-width", 89, "figure width in mm: 89 for one journal column, 183 for the page width"),
+	}
+}
+
+// check validates the figure formats and the width.
+func (f figureFlags) check() error {
+	for _, p := range []string{*f.plot, *f.hist, *f.pn} {
+		if p == "" {
+			continue
+		}
+		if _, err := figFormat(p); err != nil {
+			return err
+		}
+	}
+	if !(*f.width >= 40 && *f.width <= 300) {
+		return fmt.Errorf("--figure-width %v: want 40 to 300 mm (89: one column, 183: page width)", *f.width)
+	}
+	return nil
+}
+
+// figMargin is the blank border around every panel, so that no legend,
+// label or line touches the edge of the figure.
+const figMargin = 2 * vg.Millimeter
+
+// writeFigure lays the plots out in rows of panels about 60 mm wide (one
+// per row at 89 mm, three at 183 mm), widthMM wide in all, and writes them
+// through files.
+func writeFigure(files *output.Files, path string, plots []*plot.Plot, widthMM float64) error {
 	format, err := figFormat(path)
 	if err != nil {
 		return err
@@ -74,27 +115,40 @@ func writeFigure(path string, force bool, plots []*plot.Plot, panelW, h vg.Lengt
 	if len(plots) == 0 {
 		return fmt.Errorf("%s: nothing to draw", path)
 	}
-	w := panelW * vg.Length(len(plots))
+	cols := max(1, min(len(plots), int(widthMM/60)))
+	rows := (len(plots) + cols - 1) / cols
+	w := vg.Length(widthMM) * vg.Millimeter
+	panelH := math.Max(float64(w)/float64(cols)*0.78, float64(48*vg.Millimeter))
+	h := vg.Length(panelH) * vg.Length(rows)
 	var c vg.CanvasWriterTo
 	switch format {
 	case "png":
-		c = vgimg.PngCanvas{Canvas: vgimg.NewWith(vgimg.UseWH(w, h), vgimg.UseDPI(figDPI))}
+		c = vgimg.PngCanvas{Canvas: vgimg.NewWith(vgimg.UseWH(w, h), vgimg.UseDPI(figDPI), vgimg.UseBackgroundColor(color.White))}
 	case "svg":
 		c = vgsvg.New(w, h)
 	case "pdf":
 		c = vgpdf.New(w, h)
 	}
-	dc := draw.New(c)
-	if len(plots) == 1 {
-		plots[0].Draw(dc)
-	} else {
-		tiles := draw.Tiles{Rows: 1, Cols: len(plots), PadX: vg.Millimeter * 4}
-		cv := plot.Align([][]*plot.Plot{plots}, tiles, dc)
-		for i, p := range plots {
-			p.Draw(cv[0][i])
+	dc := draw.Crop(draw.New(c), figMargin, -figMargin, figMargin, -figMargin)
+	grid := make([][]*plot.Plot, rows)
+	for i := range grid {
+		grid[i] = make([]*plot.Plot, cols)
+		for j := range cols {
+			if k := i*cols + j; k < len(plots) {
+				grid[i][j] = plots[k]
+			}
 		}
 	}
-	return writeAtomic(path, force, func(out io.Writer) error {
+	tiles := draw.Tiles{Rows: rows, Cols: cols, PadX: vg.Millimeter * 5, PadY: vg.Millimeter * 5}
+	cv := plot.Align(grid, tiles, dc)
+	for i := range grid {
+		for j, p := range grid[i] {
+			if p != nil {
+				p.Draw(cv[i][j])
+			}
+		}
+	}
+	return files.Write(path, func(out io.Writer) error {
 		_, err := c.WriteTo(out)
 		return err
 	})
@@ -179,43 +233,109 @@ func fluctPanel(r infer.Fluctuation, showRaw, showPost bool) (*plot.Plot, error)
 	return p, nil
 }
 
-// pnPanel is the histogram of P_n(c) over the windows of one length.
+// pnPanel plots P_n(c) over the windows of one length on a log scale,
+// so that the rare negative currents show, with exact (Clopper-Pearson)
+// 95% bars on each probability N(c)/N; a panel without negative currents
+// says so.
 func pnPanel(r infer.Fluctuation, post bool) (*plot.Plot, error) {
 	s, what := r.Raw, "all windows"
 	if post {
 		s, what = r.PostSelected, "post-selected windows"
 	}
-	p := newFigPlot(fmt.Sprintf("n = %d, %s (%d)", r.N, what, s.Windows), "current c (net crossings)", "probability P(c)")
+	p := newFigPlot(fmt.Sprintf("P_n(c), n = %d, %s (%d)", r.N, what, s.Windows), "current c (net crossings)", "probability P_n(c)")
+	p.Y.Scale = plot.LogScale{}
+	p.Y.Tick.Marker = plainLogTicks{}
 	if s.Windows == 0 {
-		return p, nil
+		return p, emptyPanel(p, fmt.Sprintf("no windows of n = %d", r.N))
 	}
-	h := &plotter.Histogram{Width: 1, FillColor: figPalette[0], LineStyle: draw.LineStyle{Color: color.White, Width: vg.Points(0.3)}}
+	var e logRatioErr
+	neg := false
+	lo := 1.0
 	for i, v := range s.Count {
 		if v == 0 {
 			continue
 		}
 		c := float64(i - s.Offset)
-		h.Bins = append(h.Bins, plotter.HistogramBin{Min: c - 0.5, Max: c + 0.5, Weight: float64(v) / float64(s.Windows)})
+		neg = neg || c < 0
+		q := float64(v) / float64(s.Windows)
+		a, b := infer.ClopperPearson(int(v), s.Windows, 0.95)
+		e.XYs = append(e.XYs, plotter.XY{X: c, Y: q})
+		e.YErrors = append(e.YErrors, struct{ Low, High float64 }{q - a, b - q})
+		lo = math.Min(lo, math.Max(a, q/10))
 	}
-	p.Add(h)
-	top := 0.0
-	for _, b := range h.Bins {
-		top = math.Max(top, b.Weight)
+	bars, err := plotter.NewYErrorBars(e)
+	if err != nil {
+		return nil, err
 	}
-	p.Y.Min, p.Y.Max = 0, 1.08*top
+	bars.Color, bars.Width, bars.CapWidth = figPalette[0], vg.Points(0.6), vg.Points(2.5)
+	sc, err := plotter.NewScatter(e.XYs)
+	if err != nil {
+		return nil, err
+	}
+	sc.Color, sc.Shape, sc.Radius = figPalette[0], draw.CircleGlyph{}, vg.Points(1.8)
+	p.Add(bars, sc)
+	decade := math.Pow(10, math.Floor(math.Log10(lo)))
+	p.Y.Min, p.Y.Max = decade, 1
 	p.X.Tick.Marker = intTicks{parity: r.N % 2}
+	p.X.Min, p.X.Max = p.X.Min-0.7, p.X.Max+0.7
+	if !neg {
+		l, err := plotter.NewLabels(plotter.XYLabels{XYs: []plotter.XY{{X: p.X.Min + 0.5, Y: math.Sqrt(decade * math.Sqrt(decade))}}, Labels: []string{fmt.Sprintf("no windows with c < 0 at n = %d", r.N)}})
+		if err != nil {
+			return nil, err
+		}
+		l.TextStyle[0].Font.Size = vg.Points(7)
+		p.Add(l)
+	}
 	return p, nil
 }
 
-// gapPanel draws the log-binned densities of the time from an l event to
-// the next event when that event is l': psi_{l->l'}(t) estimated as
-// N_{ll'}(bin) / (N_{l.} bin width), so that its integral is P(l'|l).
-// Both axes are logarithmic; bins hold a factor 10^(1/5) in t.
-func gapPanel(d *likelihood.Data) (*plot.Plot, error) {
+// emptyPanel writes msg in the middle of a panel with nothing else to show.
+func emptyPanel(p *plot.Plot, msg string) error {
+	p.X.Min, p.X.Max, p.Y.Min, p.Y.Max = 0, 1, 0.01, 1
+	l, err := plotter.NewLabels(plotter.XYLabels{XYs: []plotter.XY{{X: 0.1, Y: 0.1}}, Labels: []string{msg}})
+	if err != nil {
+		return err
+	}
+	p.Add(l)
+	return nil
+}
+
+// plainLogTicks labels the decades of a log axis in plain numbers (0.001,
+// 100) between 1e-4 and 1e5, and as 1e-05 beyond.
+type plainLogTicks struct{}
+
+// Ticks implements plot.Ticker.
+func (plainLogTicks) Ticks(lo, hi float64) []plot.Tick {
+	var ticks []plot.Tick
+	for e := math.Floor(math.Log10(lo)); e <= math.Ceil(math.Log10(hi)); e++ {
+		v := math.Pow(10, e)
+		if v < lo*(1-1e-9) || v > hi*(1+1e-9) {
+			continue
+		}
+		label := strconv.FormatFloat(v, 'f', -1, 64)
+		if e < -4 || e > 5 {
+			label = strconv.FormatFloat(v, 'e', 0, 64)
+		}
+		ticks = append(ticks, plot.Tick{Value: v, Label: label})
+		for k := 2.0; k < 10; k++ {
+			if m := k * v; m >= lo && m <= hi {
+				ticks = append(ticks, plot.Tick{Value: m})
+			}
+		}
+	}
+	return ticks
+}
+
+// gapPanel draws the log-binned joint densities of the time from an l
+// event to the next event when that event is l': psi_{l->l'}(t) estimated
+// as N_{ll'}(bin) / (N_{l.} bin width), so that its integral is P(l'|l)
+// (joint, not conditional on l'). Both axes are logarithmic; bins hold a
+// factor 10^(1/5) in t.
+func gapPanel(d *likelihood.Data, u output.TimeUnit) (*plot.Plot, error) {
 	k := len(d.Labels)
-	p := newFigPlot("inter-transition times", "gap t (record time unit)", "psi(t) (1/time)")
+	p := newFigPlot("joint density psi_{l->l'}(t) of the gap and the next label (integral P(l'|l))", "gap t ("+u.Time()+")", "psi_{l->l'}(t) ("+u.Rate()+")")
 	p.X.Scale, p.Y.Scale = plot.LogScale{}, plot.LogScale{}
-	p.X.Tick.Marker, p.Y.Tick.Marker = plot.LogTicks{Prec: -1}, plot.LogTicks{Prec: -1}
+	p.X.Tick.Marker, p.Y.Tick.Marker = plainLogTicks{}, plainLogTicks{}
 	p.Legend.Top = false // the short-time, low-density corner is empty
 	lo, hi := math.Inf(1), 0.0
 	for r := range d.Records {
@@ -291,10 +411,6 @@ func gapPanel(d *likelihood.Data) (*plot.Plot, error) {
 	p.Y.Min, p.Y.Max = decade(ylo, false), decade(yhi, true)
 	return p, nil
 }
-
-// figPanelW and figPanelH are the size of one panel: 3.4 in (one journal column) by
-// 2.8 in.
-var figPanelW, figPanelH = 3.4 * vg.Inch, 2.8 * vg.Inch
 
 // intTicks marks integers: every value when the range is short, else
 // multiples of 2, 5, 10, ... so that at most about eight carry a label.

@@ -8,6 +8,7 @@ import (
 	"strconv"
 	"strings"
 
+	"edgewise/cmd/edgewise/internal/output"
 	"edgewise/infer"
 	"edgewise/likelihood"
 
@@ -59,8 +60,13 @@ family corrected by Holm's step-down procedure (a rejection is evidence,
 at 5% family-wise, not proof).
 
 Records: CSV or TSV with columns time, label and optionally record; "-"
-reads standard input. Times are in the unit of the rates. --rename and
---trace read other labels and state traces as in 'inspect'.
+reads standard input. Times are in the unit of the rates (--time-unit
+names it). --rename, --trace and --edge read other labels and state
+traces as in 'inspect', with the same rule for the visible edge's
+direction.
+
+Figures (--plot, --hist, --pn; .png, .svg or .pdf) are sized for a
+journal column (--figure-width 89, in mm) or a full page width (183).
 
 Example:
   edgewise fluct testdata/ring4-demo.csv --windows 5,20 --fixed-time --bounds \
@@ -80,115 +86,119 @@ Options:
 `
 
 func cmdFluct(args []string, stdout, stderr io.Writer) int {
-	fs := newFlags("fluct", fluctHelp, args, stdout, stderr)
-	nlist := fs.StringP("windows", "w", "5,20,100", "window lengths in events, comma separated")
-	post := fs.String("post-select", "both", "windows shown: only (post-selected) or both (all and post-selected)")
-	fixed := fs.Bool("fixed-time", false, "add windows of a fixed clock time as a contrast")
-	bounds := fs.Bool("bounds", false, "add entropy production lower bounds")
-	bf := addBoundFlags(fs)
-	rf := addRecordFlags(fs)
+	c := newCommand("fluct", fluctHelp, args, stdout, stderr)
+	nlist := c.fs.StringP("windows", "w", "5,20,100", "window lengths in events, comma separated")
+	post := c.fs.String("post-select", "both", "windows shown: only (post-selected) or both (all and post-selected)")
+	fixed := c.fs.Bool("fixed-time", false, "add windows of a fixed clock time as a contrast")
+	bounds := c.fs.Bool("bounds", false, "add entropy production lower bounds")
+	bf := addBoundFlags(c.fs)
+	rf := addRecordFlags(c.fs)
 	level := rf.level
-	boot := fs.Int("boot", infer.DefaultDiffusionBoot, "bootstrap replicates")
-	seed := fs.Uint64P("seed", "s", 1, "bootstrap random seed")
-	plotPath := fs.String("plot", "", "write the fluctuation plot to this file (.png, .svg, .pdf)")
-	histPath := fs.String("hist", "", "write inter-transition time densities to this file")
-	pnPath := fs.String("pn", "", "write P_n(c) histograms to this file")
-	format := fs.StringP("format", "f", "table", "output format: "+formats)
-	out := fs.StringP("output", "o", "-", "output file for the tables (- for standard output)")
-	force := fs.Bool("force", false, "overwrite existing output and figure files")
-	if code := parseFlags(fs, args); code >= 0 {
+	boot := c.fs.Int("boot", infer.DefaultDiffusionBoot, "bootstrap replicates")
+	seed := c.fs.Uint64P("seed", "s", 1, "bootstrap random seed")
+	ff := addFigureFlags(c.fs)
+	c.outputFlags(true)
+	c.timeUnitFlag()
+	if code := c.parse(); code >= 0 {
 		return code
 	}
-	if fs.NArg() != 1 {
-		fs.Usage()
-		return 2
-	}
-	fail := func(code int, err error) int {
-		fmt.Fprintf(stderr, "edgewise fluct: %v\n", err)
-		return code
+	if c.fs.NArg() != 1 {
+		return c.usage("want one records file (or - for standard input), got %d arguments", c.fs.NArg())
 	}
 	ns, err := parseInts(*nlist)
 	if err != nil {
-		return fail(2, fmt.Errorf("--windows: %w", err))
+		return c.usage("--windows: %v", err)
 	}
 	if *post != "only" && *post != "both" {
-		return fail(2, fmt.Errorf("--post-select %q: want only or both", *post))
+		return c.usage("--post-select %q: want only or both", *post)
 	}
-	fwd, bwd, err := rf.edgeLabels()
-	if err != nil {
-		return fail(2, err)
+	if rf.fs.Changed("edge") {
+		if _, _, err := rf.edgeLabels(); err != nil {
+			return c.usage("%v", err)
+		}
 	}
 	if err := rf.checkLevel(); err != nil {
-		return fail(2, err)
+		return c.usage("%v", err)
+	}
+	if _, err := c.outputFormat(); err != nil {
+		return c.usage("%v", err)
+	}
+	if err := checkTimeUnit(*c.timeUnit); err != nil {
+		return c.usage("%v", err)
 	}
 	ropt, err := rf.readOptions()
 	if err != nil {
-		return fail(2, err)
-	}
-	if err := checkOutput(*out, *force); err != nil {
-		return fail(1, err)
-	}
-	for _, p := range []string{*plotPath, *histPath, *pnPath} {
-		if p == "" {
-			continue
-		}
-		if _, err := figFormat(p); err != nil {
-			return fail(2, err)
-		}
-		if _, err := os.Stat(p); err == nil && !*force {
-			return fail(1, fmt.Errorf("%s exists; use --force to overwrite", p))
-		}
-	}
-	path := fs.Arg(0)
-	d, rep, sum, err := readInput(path, os.Stdin, ropt)
-	if err != nil {
-		return fail(1, err)
-	}
-	if err := d.PutFirst(fwd, bwd); err != nil { // tables list the visible edge's labels first
-		fmt.Fprintf(stderr, "edgewise: %v\n", err)
-		return 1
+		return c.usage("%v", err)
 	}
 	cond, err := bf.conditions()
 	if err != nil {
-		return fail(2, err)
+		return c.usage("%v", err)
 	}
-	edge := infer.EdgeLabels{Forward: fwd, Backward: bwd}
-	res, err := infer.FluctuationTest(d, ns, infer.FluctOptions{Labels: edge, Level: *level, Boot: *boot, Seed: *seed, FixedTime: *fixed})
+	if err := ff.check(); err != nil {
+		return c.usage("%v", err)
+	}
+	files := output.NewFiles(stdout, *c.force)
+	defer files.Close()
+	for _, o := range []struct{ flag, path string }{{"-o", *c.out}, {"--plot", *ff.plot}, {"--hist", *ff.hist}, {"--pn", *ff.pn}} {
+		if err := files.Claim(o.flag, o.path); err != nil {
+			return c.fail(1, err)
+		}
+	}
+	in, err := c.readRecords(c.fs.Arg(0), os.Stdin, ropt)
 	if err != nil {
-		return fail(1, err)
+		return c.fail(1, err)
 	}
-	r := &report{Tool: "edgewise " + version, Command: "fluct " + strings.Join(args, " "), Input: path, Checksum: sum, Seed: strconv.FormatUint(*seed, 10)}
+	d := in.d
+	fwd, bwd, edgeNote, err := rf.chooseEdge(in)
+	if err != nil {
+		return c.usage("%v", err)
+	}
+	if err := d.PutFirst(fwd, bwd); err != nil { // tables list the visible edge's labels first
+		return c.fail(1, err)
+	}
+	unit, unitNote := c.resolveTimeUnit("", in.stamp["time_unit"])
+	deadNote := bf.fromStamp(in.stamp, &cond)
+	edge := infer.EdgeLabels{Forward: fwd, Backward: bwd}
+	stop := c.spin("resampling")
+	res, err := infer.FluctuationTest(d, ns, infer.FluctOptions{Labels: edge, Level: *level, Boot: *boot, Seed: *seed, FixedTime: *fixed})
+	stop()
+	if err != nil {
+		return c.fail(1, err)
+	}
+	r := c.newReport([]output.Input{in.input()}, output.SeedOf(*seed), unit)
+	r.Notes = nonEmpty(edgeNote, unitNote, deadNote)
 	checks := infer.FluctChecks(res, 1-*level)
-	r.Tables = append(r.Tables, fluctTables(res, checks, *post == "both", *level)...)
+	r.Add(fluctTables(res, checks, *post == "both", *level)...)
+	r.Note("tests (post-selected slope against F, linearity of the post-selected log-ratio) form one family, corrected by Holm's step-down procedure (Holm, Scand. J. Stat. 6, 65 (1979)): each p is the test's own, 'Holm p' the adjusted one; a rejection is evidence at %.3g%% family-wise, not proof", 100*(1-*level))
+	r.Note("%d events in %d records; windows of n consecutive events never cross records and do not overlap, so their currents are nearly independent", d.Events(), len(d.Records))
 	r.Notes = append(r.Notes,
-		fmt.Sprintf("tests (post-selected slope against F, linearity of the post-selected log-ratio) form one family, corrected by Holm's step-down procedure (Holm, Scand. J. Stat. 6, 65 (1979)): each p is the test's own, 'Holm p' the adjusted one; a rejection is evidence at %.3g%% family-wise, not proof", 100*(1-*level)),
-		fmt.Sprintf("%d events in %d records; windows of n consecutive events never cross records and do not overlap, so their currents are nearly independent", d.Events(), len(d.Records)),
 		"slope - F: SE from a block bootstrap over blocks of whole windows (at least 100 events) within records, since slope and F come from the same events and are correlated; with fewer than 50 blocks both SEs are added as if independent (conservative)",
 		"the test assumes stationarity; a drifting record mixes windows with different laws",
 		"a slope consistent with F does not prove a model; post-selected windows follow F c exactly only when the labels form a first-order Markov chain",
 	)
-	if dup := rep.Duplicates(); dup > 0 {
-		r.Notes = append(r.Notes, fmt.Sprintf("%d events share the time of the previous event (rounded timestamps?): the windows count them, the waiting-time divergences leave those zero gaps out", dup))
+	if dup := in.rep.Duplicates(); dup > 0 {
+		r.Note("%d events share the time of the previous event (rounded timestamps?): the windows count them, the waiting-time divergences leave those zero gaps out", dup)
 	}
-	var bres *infer.Bounds
 	if *bounds {
-		bres, err = infer.EntropyBounds(d, infer.BoundOptions{Labels: edge, Level: *level, Conditions: cond})
+		stop := c.spin("bounds")
+		bres, err := infer.EntropyBounds(d, infer.BoundOptions{Labels: edge, Level: *level, Conditions: cond})
+		stop()
 		if err != nil {
-			return fail(1, err)
+			return c.fail(1, err)
 		}
-		r.Tables = append(r.Tables, boundTables(bres, *level)...)
+		r.Add(boundTables(bres, *level, unit)...)
 		if bres.Claimed {
-			r.Notes = append(r.Notes, "F*J, J^2/D and the transition-based sum are lower bounds on the entropy production rate, not estimates of it, given: "+strings.Join(bres.Validity.Assumes, "; ")+". A model whose sigma lies below a bound's interval is then evidence against that model, not proof")
+			r.Note("F*J, J^2/D and the transition-based sum are lower bounds on the entropy production rate, not estimates of it, given: %s. A model whose sigma lies below a bound's interval is then evidence against that model, not proof", strings.Join(bres.Validity.Assumes, "; "))
 		} else {
-			r.Notes = append(r.Notes, "entropy-production bounds withheld: "+bres.Reason)
+			r.Note("entropy-production bounds withheld: %s", bres.Reason)
 		}
 		r.Notes = append(r.Notes, bres.WaitingTimeNotes...)
 	}
-	if err := writeFluctFigures(d, res, *post == "both", *plotPath, *histPath, *pnPath, *force); err != nil {
-		return fail(1, err)
+	if err := writeFluctFigures(files, ff, d, res, *post == "both", unit); err != nil {
+		return c.fail(1, err)
 	}
-	if err := emit(*out, *force, stdout, func(w io.Writer) error { return r.write(w, *format) }); err != nil {
-		return fail(1, err)
+	if err := c.emitReport(files, r); err != nil {
+		return c.fail(1, err)
 	}
 	return 0
 }
@@ -208,9 +218,7 @@ func parseInts(s string) ([]int, error) {
 	return out, nil
 }
 
-// fg formats a number like inspect's num (5 significant digits), so that
-// the same estimate prints the same in both commands, but "-" when
-// undefined.
+// fluctKinds lists the kinds of window shown, in table order.
 func fluctKinds(r infer.Fluctuation, both bool) []infer.Symmetry {
 	var out []infer.Symmetry
 	if both {
@@ -221,6 +229,19 @@ func fluctKinds(r infer.Fluctuation, both bool) []infer.Symmetry {
 		out = append(out, *r.FixedTime)
 	}
 	return out
+}
+
+// kindKey is the machine key of a kind of window.
+func kindKey(s infer.Symmetry) string {
+	switch s.Kind {
+	case "count-stopped":
+		return "all"
+	case "fixed-time":
+		return "fixed_time"
+	case "post-selected":
+		return "post_selected"
+	}
+	return output.Key(s.Kind)
 }
 
 func kindName(s infer.Symmetry) string {
@@ -260,38 +281,6 @@ func rowReading(s infer.Symmetry, c, lin *infer.Check) string {
 	}
 }
 
-// fluctTables renders the test results; checks is FluctChecks(res): two
-// per window length, the slope against F and the linearity.
-func fluctTables(res []infer.Fluctuation, checks []infer.Check, both bool, level float64) []table {
-	pct := fmt.Sprintf("%g%%", 100*level)
-	main := table{
-		Title:   "Fluctuation test: slope of ln[P(c)/P(-c)] against c, set against F (k_BT)",
-		Columns: []string{"n", "windows", "how many", "c in fit", "c one-sided", "slope", pct + " interval", "F", "F " + pct, "slope - F", "SE", "z", "p", "Holm p", "linearity p", "reading"},
-	}
-	pts := table{
-		Title:   "Log-ratios per current c (exact " + pct + " intervals)",
-		Columns: []string{"n", "windows", "c", "N(c)", "N(-c)", "ln[N(c)/N(-c)]", "interval"},
-	}
-	for i, r := range res {
-		c, lin := &checks[2*i], &checks[2*i+1]
-		for _, s := range fluctKinds(r, both) {
-			v := s.Versus
-			p, holm := "", ""
-			if s.Kind == "post-selected" {
-				p, holm = pval(c.P), pval(c.Adjusted)
-			}
-			main.Rows = append(main.Rows, []string{
-				strconv.Itoa(r.N), kindName(s), strconv.Itoa(s.Windows), strconv.Itoa(s.Used), strconv.Itoa(s.Skipped),
-				num(s.Slope.Value), interval(s.Slope), num(r.F.Value), interval(r.F), num(v.Diff.Value), num(v.Diff.SE), num(v.Z), p, holm, pval(s.LinearP), rowReading(s, c, lin),
-			})
-			for _, p := range s.Points {
-				pts.Rows = append(pts.Rows, []string{strconv.Itoa(r.N), kindName(s), strconv.Itoa(p.C), strconv.FormatInt(p.Plus, 10), strconv.FormatInt(p.Minus, 10), num(p.LogRatio), interval(infer.Estimate{Lo: p.Lo, Hi: p.Hi})})
-			}
-		}
-	}
-	return []table{main, pts}
-}
-
 // boundFlags are the instrument facts that decide, with the data's
 // Markov-order test, whether the entropy-production bounds hold
 // (infer.BoundsValid); the data cannot show them.
@@ -299,10 +288,12 @@ type boundFlags struct {
 	multi  *bool
 	dead   *float64
 	detect *string
+	fs     *pflag.FlagSet
 }
 
 func addBoundFlags(fs *pflag.FlagSet) boundFlags {
 	return boundFlags{
+		fs:     fs,
 		multi:  fs.Bool("multi-edge", false, "a label may sit on several directed edges: the entropy bounds are withheld"),
 		dead:   fs.Float64("dead-time", 0, "the instrument's dead time after each event, when known (time units): the entropy bounds are withheld"),
 		detect: fs.String("detect", "", "detection probabilities of the forward and backward labels, when known, as P+,P- (unequal ones withhold the entropy bounds)"),
@@ -326,43 +317,84 @@ func (b boundFlags) conditions() (infer.BoundConditions, error) {
 	return c, nil
 }
 
+// fromStamp takes the dead time from the records' stamp when --dead-time
+// was not given, and returns a note saying so ("" when not used).
+func (b boundFlags) fromStamp(s simStamp, c *infer.BoundConditions) string {
+	if b.fs.Changed("dead-time") {
+		return ""
+	}
+	if dt, ok := s.float("dead_time"); ok && dt > 0 && !math.IsInf(dt, 0) {
+		c.DeadTime = dt
+		return fmt.Sprintf("dead time %g read from the records' stamp (simulate)", dt)
+	}
+	return ""
+}
+
+// fluctTables renders the test results; checks is FluctChecks(res): two
+// per window length, the slope against F and the linearity.
+func fluctTables(res []infer.Fluctuation, checks []infer.Check, both bool, level float64) []*output.Table {
+	main := output.NewTable("fluct", "Fluctuation test: slope of ln[P(c)/P(-c)] against c, set against F", "windows",
+		output.Col("n", "n", ""), output.Col("kind", "kind", ""), output.Col("windows", "how many", ""),
+		output.Col("c_in_fit", "c in fit", ""), output.Col("c_one_sided", "c one-sided", ""),
+		output.Col("slope", "slope", "k_BT"), output.Col("slope_interval", pct(level)+" interval", "k_BT"),
+		output.Col("F", "F", "k_BT"), output.Col("F_interval", "F "+pct(level), "k_BT"),
+		output.Col("slope_minus_F", "slope - F", "k_BT"), output.Col("se", "SE", "k_BT"), output.Col("z", "z", ""),
+		output.Col("p", "p", ""), output.Col("holm_p", "Holm p", ""), output.Col("linearity_p", "linearity p", ""), output.Col("reading", "reading", ""))
+	pts := output.NewTable("log_ratios", "Log-ratios per current c (exact "+pct(level)+" intervals)", "windows",
+		output.Col("n", "n", ""), output.Col("kind", "kind", ""), output.Col("c", "c", ""), output.Col("N_c", "N(c)", ""), output.Col("N_minus_c", "N(-c)", ""),
+		output.Col("log_ratio", "ln[N(c)/N(-c)]", ""), output.Col("interval", "interval", ""))
+	for i, r := range res {
+		c, lin := &checks[2*i], &checks[2*i+1]
+		for _, s := range fluctKinds(r, both) {
+			v := s.Versus
+			p, holm := output.Empty(), output.Empty()
+			if s.Kind == "post-selected" {
+				p, holm = output.P(c.P), output.P(c.Adjusted)
+			}
+			key := fmt.Sprintf("n%d_%s", r.N, kindKey(s))
+			label := fmt.Sprintf("n = %d, %s", r.N, kindName(s))
+			main.Add(key, label,
+				output.Count(r.N), output.Text(kindName(s)), output.Count(s.Windows), output.Count(s.Used), output.Count(s.Skipped),
+				output.Num(s.Slope.Value), output.Interval(s.Slope.Lo, s.Slope.Hi, level, s.Slope.Method), output.Num(r.F.Value), output.Interval(r.F.Lo, r.F.Hi, level, r.F.Method),
+				output.Num(v.Diff.Value), output.Num(v.Diff.SE), output.Num(v.Z), p, holm, output.P(s.LinearP), output.Text(rowReading(s, c, lin)))
+			for _, pt := range s.Points {
+				pts.Add(fmt.Sprintf("%s_c%d", key, pt.C), fmt.Sprintf("%s, c = %d", label, pt.C), output.Count(r.N), output.Text(kindName(s)), output.Count(pt.C),
+					output.Count(int(pt.Plus)), output.Count(int(pt.Minus)), output.Num(pt.LogRatio), output.Interval(pt.Lo, pt.Hi, level, "Clopper-Pearson, logit"))
+			}
+		}
+	}
+	return []*output.Table{main, pts}
+}
+
 // boundTables renders the entropy production bounds.
-func boundTables(b *infer.Bounds, level float64) []table {
-	pct := fmt.Sprintf("%g%%", 100*level)
-	t := table{
-		Title:   "Entropy production: lower bounds from the data (k_B per time unit)",
-		Columns: []string{"quantity", "value", "SE", pct + " interval", "method", "note"},
-	}
-	row := func(name string, e infer.Estimate) {
-		t.Rows = append(t.Rows, []string{name, num(e.Value), num(e.SE), interval(e), e.Method, e.Note})
-	}
-	row("visible current J (1/time)", b.J)
-	row("effective affinity F (k_BT)", b.F)
-	row("diffusion coefficient D of c (1/time)", b.D)
+func boundTables(b *infer.Bounds, level float64, u output.TimeUnit) []*output.Table {
+	t := output.NewTable("bounds", "Entropy production: lower bounds from the data", "quantity", estimateUnitCols(level)...)
+	t.Add("J", "visible current J", estimateUnitCells(u.Rate(), b.J, level)...)
+	t.Add("F", "effective affinity F", estimateUnitCells("k_BT", b.F, level)...)
+	t.Add("D", "diffusion coefficient D of c", estimateUnitCells(u.Rate(), b.D, level)...)
 	m := b.Validity.Markov
 	mnote := fmt.Sprintf("the bounds are withheld below p = %g", b.Validity.Level)
 	if !b.Validity.Tested {
 		mnote = "not tested: " + m.Note
 	}
-	t.Rows = append(t.Rows, []string{"Markov-order test of the labels, p", pval(m.P), "", "", fmt.Sprintf("G = %s on %d df (%d triplets)", num(m.Stat), m.DF, m.N), mnote})
-	row("bound F*J", b.FJ)
-	row("bound J^2/D (uncertainty relation)", b.TUR)
-	row("transition bound: sequence part", b.Sequence)
-	row(fmt.Sprintf("transition bound: waiting-time part (%d ++ and %d -- gaps)", b.Gaps[0], b.Gaps[1]), b.WaitingTime)
-	row("bound: transition-based total", b.Transition)
-	v := table{
-		Title:   fmt.Sprintf("Variance of the current in windows of duration t (D fitted on t from %s to %s)", num(b.FitFrom), num(b.FitTo)),
-		Columns: []string{"t", "windows", "mean c", "Var c", "Var c / 2t"},
+	t.Add("markov_p", "Markov-order test of the labels, p", output.Empty(), output.P(m.P), output.Empty(), output.Empty(),
+		output.Text(fmt.Sprintf("G = %s on %d df (%d triplets)", num(m.Stat), m.DF, m.N)), output.Text(mnote))
+	t.Add("FJ", "bound F*J", estimateUnitCells(u.Entropy(), b.FJ, level)...)
+	t.Add("TUR", "bound J^2/D (uncertainty relation)", estimateUnitCells(u.Entropy(), b.TUR, level)...)
+	t.Add("sequence", "transition bound: sequence part", estimateUnitCells(u.Entropy(), b.Sequence, level)...)
+	t.Add("waiting_time", fmt.Sprintf("transition bound: waiting-time part (%d ++ and %d -- gaps)", b.Gaps[0], b.Gaps[1]), estimateUnitCells(u.Entropy(), b.WaitingTime, level)...)
+	t.Add("transition", "bound: transition-based total", estimateUnitCells(u.Entropy(), b.Transition, level)...)
+	v := output.NewTable("variance", fmt.Sprintf("Variance of the current in windows of duration t (D fitted on t from %s to %s)", num(b.FitFrom), num(b.FitTo)), "window",
+		output.Col("t", "t", u.Time()), output.Col("windows", "windows", ""), output.Col("mean_c", "mean c", ""), output.Col("var_c", "Var c", ""), output.Col("var_c_over_2t", "Var c / 2t", u.Rate()))
+	for i, p := range b.Variance {
+		v.Add(fmt.Sprintf("t_%d", i+1), fmt.Sprintf("%d", i+1), output.Num(p.T), output.Count(p.Windows), output.Num(p.Mean), output.Num(p.Var), output.Num(p.Var/(2*p.T)))
 	}
-	for _, p := range b.Variance {
-		v.Rows = append(v.Rows, []string{num(p.T), strconv.Itoa(p.Windows), num(p.Mean), num(p.Var), num(p.Var / (2 * p.T))})
-	}
-	return []table{t, v}
+	return []*output.Table{t, v}
 }
 
-// writeFluctFigures writes the figures asked for.
-func writeFluctFigures(d *likelihood.Data, res []infer.Fluctuation, both bool, plotPath, histPath, pnPath string, force bool) error {
-	if plotPath != "" {
+// writeFluctFigures writes the figures asked for through files.
+func writeFluctFigures(files *output.Files, ff figureFlags, d *likelihood.Data, res []infer.Fluctuation, both bool, u output.TimeUnit) error {
+	if *ff.plot != "" {
 		var ps []*plot.Plot
 		for _, r := range res {
 			p, err := fluctPanel(r, both, true)
@@ -371,11 +403,11 @@ func writeFluctFigures(d *likelihood.Data, res []infer.Fluctuation, both bool, p
 			}
 			ps = append(ps, p)
 		}
-		if err := writeFigure(plotPath, force, ps, figPanelW, figPanelH); err != nil {
+		if err := writeFigure(files, *ff.plot, ps, *ff.width); err != nil {
 			return err
 		}
 	}
-	if pnPath != "" {
+	if *ff.pn != "" {
 		var ps []*plot.Plot
 		for _, r := range res {
 			p, err := pnPanel(r, !both)
@@ -384,16 +416,16 @@ func writeFluctFigures(d *likelihood.Data, res []infer.Fluctuation, both bool, p
 			}
 			ps = append(ps, p)
 		}
-		if err := writeFigure(pnPath, force, ps, figPanelW, figPanelH); err != nil {
+		if err := writeFigure(files, *ff.pn, ps, *ff.width); err != nil {
 			return err
 		}
 	}
-	if histPath != "" {
-		p, err := gapPanel(d)
+	if *ff.hist != "" {
+		p, err := gapPanel(d, u)
 		if err != nil {
 			return err
 		}
-		if err := writeFigure(histPath, force, []*plot.Plot{p}, figPanelW*1.3, figPanelH*1.2); err != nil {
+		if err := writeFigure(files, *ff.hist, []*plot.Plot{p}, *ff.width); err != nil {
 			return err
 		}
 	}

@@ -1,15 +1,13 @@
 package main
 
 import (
-	"crypto/sha256"
-	"encoding/hex"
 	"fmt"
 	"io"
 	"math"
 	"os"
-	"strconv"
 	"strings"
 
+	"edgewise/cmd/edgewise/internal/output"
 	"edgewise/infer"
 	"edgewise/likelihood"
 )
@@ -25,7 +23,7 @@ time and label, optional record; '#' lines are comments; a row labelled
     long-time slope of Var c(t) = a + 2Dt (the same estimator, block
     bootstrap and seed as 'fluct --bounds', so with the same --boot and
     --seed both print the same D and interval); also the Fano
-    factor Var c(t)/|mean c(t)| at one window length, --window events on
+    factor Var c(t)/|mean c(t)| at one window length, --fano-events events on
     average (it includes the window's boundary offset a/(|J| t));
   - P(l'|l), the probability that an l event is followed by l', with exact
     (Clopper-Pearson) intervals;
@@ -51,6 +49,12 @@ records (the rates on log scale); with few events a rate takes the exact
 Poisson (Garwood) interval, which assumes Poisson counting, and J and D
 say "too few events" instead of a number.
 
+The visible edge is + and - when the records have them; else the edge
+the records' stamp names (simulate writes the spec's direction there);
+else, with exactly two labels, the first to appear is forward; the output
+says which. With more labels, name it with --edge FORWARD,BACKWARD.
+A dead time recorded in the stamp is used when --dead-time is not given.
+
 For a state trace (columns time and state) use --trace: each change of
 state X -> Y becomes an event labelled "X>Y" (rename with --rename).
 
@@ -63,76 +67,90 @@ Options:
 `
 
 func cmdInspect(args []string, stdout, stderr io.Writer) int {
-	fs := newFlags("inspect", inspectHelp, args, stdout, stderr)
-	format := fs.StringP("format", "f", "table", "output format: "+formats)
-	rf := addRecordFlags(fs)
-	perRecord := fs.Bool("per-record", false, "also show each record on its own")
-	window := fs.Float64("window", 50, "mean events per window of the Fano factor")
-	boot := fs.Int("boot", infer.DefaultDiffusionBoot, "bootstrap replicates, for F, J, the activity and D (0: delta method only)")
-	shapeBoot := fs.Int("shape-resamples", 199, "null resamples calibrating the shape test (0: none; skipped above 10^6 gaps)")
-	seed := fs.Uint64P("seed", "s", 1, "random seed of the bootstrap")
-	bf := addBoundFlags(fs)
-	out := fs.StringP("output", "o", "-", "output file (- for standard output)")
-	force := fs.Bool("force", false, "overwrite an existing output file")
-	if code := parseFlags(fs, args); code >= 0 {
+	c := newCommand("inspect", inspectHelp, args, stdout, stderr)
+	rf := addRecordFlags(c.fs)
+	perRecord := c.fs.Bool("per-record", false, "also show each record on its own")
+	fano := c.fs.Float64("fano-events", 50, "mean events per window of the Fano factor")
+	c.fs.Float64Var(fano, "window", 50, "old name of --fano-events")
+	c.fs.MarkDeprecated("window", "use --fano-events (--windows is the count-stopped window lengths in fluct and predict)")
+	boot := c.fs.Int("boot", infer.DefaultDiffusionBoot, "bootstrap replicates, for F, J, the activity and D (0: delta method only)")
+	shapeBoot := c.fs.Int("shape-resamples", 199, "null resamples calibrating the shape test (0: none; skipped above 10^6 gaps)")
+	seed := c.fs.Uint64P("seed", "s", 1, "random seed of the bootstrap")
+	bf := addBoundFlags(c.fs)
+	c.outputFlags(true)
+	c.timeUnitFlag()
+	if code := c.parse(); code >= 0 {
 		return code
 	}
-	if fs.NArg() != 1 {
-		fs.Usage()
-		return 2
+	if c.fs.NArg() != 1 {
+		return c.usage("want one records file (or - for standard input), got %d arguments", c.fs.NArg())
 	}
-	if *boot < 0 || *shapeBoot < 0 || !(*window > 0) {
-		return usageError(stderr, "inspect", "--boot and --shape-resamples must be >= 0 and --window > 0")
+	if *boot < 0 || *shapeBoot < 0 || !(*fano > 0) {
+		return c.usage("--boot and --shape-resamples must be >= 0 and --fano-events > 0")
 	}
 	if err := rf.checkLevel(); err != nil {
-		return usageError(stderr, "inspect", "%v", err)
+		return c.usage("%v", err)
 	}
-	plus, minus, err := rf.edgeLabels()
-	if err != nil {
-		return usageError(stderr, "inspect", "%v", err)
+	if rf.fs.Changed("edge") {
+		if _, _, err := rf.edgeLabels(); err != nil {
+			return c.usage("%v", err)
+		}
 	}
-	if !validFormat(*format) {
-		fmt.Fprintf(stderr, "edgewise: unknown format %q (want %s)\n", *format, formats)
-		return 2
+	if _, err := c.outputFormat(); err != nil {
+		return c.usage("%v", err)
+	}
+	if err := checkTimeUnit(*c.timeUnit); err != nil {
+		return c.usage("%v", err)
 	}
 	opt, err := rf.readOptions()
 	if err != nil {
-		return usageError(stderr, "inspect", "%v", err)
+		return c.usage("%v", err)
 	}
 	cond, err := bf.conditions()
 	if err != nil {
-		return usageError(stderr, "inspect", "%v", err)
+		return c.usage("%v", err)
 	}
-	if err := checkOutput(*out, *force); err != nil {
-		fmt.Fprintf(stderr, "edgewise: %v\n", err)
-		return 1
+	files := output.NewFiles(stdout, *c.force)
+	defer files.Close()
+	if err := files.Claim("-o", *c.out); err != nil {
+		return c.fail(1, err)
 	}
-	path := fs.Arg(0)
-	d, rep, sum, err := readInput(path, os.Stdin, opt)
+	in, err := c.readRecords(c.fs.Arg(0), os.Stdin, opt)
 	if err != nil {
-		fmt.Fprintf(stderr, "edgewise: %v\n", err)
-		return 1
+		return c.fail(1, err)
 	}
-	if err := d.PutFirst(plus, minus); err != nil { // tables list the visible edge's labels first
-		fmt.Fprintf(stderr, "edgewise: %v\n", err)
-		return 1
-	}
-	r, err := inspectReport(d, rep, inspectConfig{plus: plus, minus: minus, level: *rf.level, perRecord: *perRecord, window: *window, boot: *boot, dboot: *boot, shapeBoot: *shapeBoot, seed: *seed, cond: cond})
+	plus, minus, edgeNote, err := rf.chooseEdge(in)
 	if err != nil {
-		fmt.Fprintf(stderr, "edgewise: %v\n", err)
-		return 1
+		return c.usage("%v", err)
 	}
-	r.Input, r.Checksum = path, sum
-	r.Command = "inspect " + strings.Join(args, " ")
-	r.Seed = strconv.FormatUint(*seed, 10)
-	if path == "-" {
-		r.Input = "stdin"
+	if err := in.d.PutFirst(plus, minus); err != nil { // tables list the visible edge's labels first
+		return c.fail(1, err)
 	}
-	if err := emit(*out, *force, stdout, func(w io.Writer) error { return r.write(w, *format) }); err != nil {
-		fmt.Fprintf(stderr, "edgewise: %v\n", err)
-		return 1
+	unit, unitNote := c.resolveTimeUnit("", in.stamp["time_unit"])
+	deadNote := bf.fromStamp(in.stamp, &cond)
+	stop := c.spin("resampling")
+	r, err := inspectReport(in.d, in.rep, inspectConfig{plus: plus, minus: minus, level: *rf.level, perRecord: *perRecord, window: *fano, boot: *boot, dboot: *boot, shapeBoot: *shapeBoot, seed: *seed, cond: cond, unit: unit})
+	stop()
+	if err != nil {
+		return c.fail(1, err)
+	}
+	r.Command, r.Stamp = c.name, c.newReport([]output.Input{in.input()}, output.SeedOf(*seed), unit).Stamp
+	r.Notes = append(nonEmpty(edgeNote, unitNote, deadNote), r.Notes...)
+	if err := c.emitReport(files, r); err != nil {
+		return c.fail(1, err)
 	}
 	return 0
+}
+
+// nonEmpty returns the non-empty strings of ss.
+func nonEmpty(ss ...string) []string {
+	var out []string
+	for _, s := range ss {
+		if s != "" {
+			out = append(out, s)
+		}
+	}
+	return out
 }
 
 // checkReading words a check as evidence: its null hypothesis, and what a
@@ -147,62 +165,6 @@ func checkReading(c infer.Check) string {
 	return fmt.Sprintf("no evidence against: %s (Holm p = %s)", c.Null, pval(c.Adjusted))
 }
 
-// readInput reads records from path ("-": stdin), hashing the bytes read;
-// for a file the size goes to the reader, which then sizes its event
-// slices once.
-func readInput(path string, stdin io.Reader, opt infer.ReadOptions) (*likelihood.Data, *infer.ReadReport, string, error) {
-	var src io.Reader
-	name := path
-	if path == "-" {
-		src, name = stdin, "stdin"
-	} else {
-		f, err := os.Open(path)
-		if err != nil {
-			return nil, nil, "", err
-		}
-		defer f.Close()
-		src = f
-		if fi, err := f.Stat(); err == nil {
-			opt.SizeHint = fi.Size()
-		}
-	}
-	h := sha256.New()
-	d, rep, err := infer.ReadRecords(io.TeeReader(src, h), name, opt)
-	if err != nil {
-		return nil, nil, "", err
-	}
-	// Hash whatever the reader left unread, so that the checksum is the
-	// input's whatever the reader does.
-	if _, err := io.Copy(h, src); err != nil {
-		return nil, nil, "", fmt.Errorf("%s: %w", name, err)
-	}
-	return d, rep, hex.EncodeToString(h.Sum(nil)), nil
-}
-
-// parseLabelMap parses "a=+,b=-" into a renaming map and the list of new
-// names in order of first mention.
-func parseLabelMap(s string) (map[string]string, []string, error) {
-	m := make(map[string]string)
-	var known []string
-	seen := make(map[string]bool)
-	for _, kv := range strings.Split(s, ",") {
-		k, v, ok := strings.Cut(kv, "=")
-		k, v = strings.TrimSpace(k), strings.TrimSpace(v)
-		if !ok || k == "" || v == "" {
-			return nil, nil, fmt.Errorf("%q: want FILE_LABEL=MODEL_LABEL", kv)
-		}
-		if _, dup := m[k]; dup {
-			return nil, nil, fmt.Errorf("label %q renamed twice", k)
-		}
-		m[k] = v
-		if !seen[v] {
-			seen[v] = true
-			known = append(known, v)
-		}
-	}
-	return m, known, nil
-}
-
 type inspectConfig struct {
 	plus, minus string
 	level       float64
@@ -213,27 +175,11 @@ type inspectConfig struct {
 	shapeBoot   int
 	seed        uint64
 	cond        infer.BoundConditions
-}
-
-func interval(e infer.Estimate) string {
-	if math.IsNaN(e.Lo) && math.IsNaN(e.Hi) {
-		return "n/a"
-	}
-	return "[" + num(e.Lo) + ", " + num(e.Hi) + "]"
-}
-
-func pval(p float64) string {
-	if math.IsNaN(p) {
-		return "n/a"
-	}
-	if p < 1e-300 && p >= 0 {
-		return "< 1e-300"
-	}
-	return strconv.FormatFloat(p, 'g', 3, 64)
+	unit        output.TimeUnit
 }
 
 // inspectReport builds the tables of inspect.
-func inspectReport(d *likelihood.Data, rep *infer.ReadReport, c inspectConfig) (*report, error) {
+func inspectReport(d *likelihood.Data, rep *infer.ReadReport, c inspectConfig) (*output.Report, error) {
 	dboot := c.dboot
 	if dboot == 0 {
 		dboot = -1 // Summarize: negative means no bootstrap
@@ -242,10 +188,11 @@ func inspectReport(d *likelihood.Data, rep *infer.ReadReport, c inspectConfig) (
 	if err != nil {
 		return nil, err
 	}
-	r := &report{Tool: "edgewise " + version, Command: fmt.Sprintf("inspect (seed %d)", c.seed)}
+	u := c.unit
+	r := &output.Report{Command: "inspect"}
 	p := &s.Pooled
 	single := s.Plus >= 0 && s.Minus >= 0
-	lvl := fmt.Sprintf("%g%%", 100*s.Level)
+	lvl := s.Level
 
 	// Data.
 	dups := rep.Duplicates()
@@ -253,51 +200,49 @@ func inspectReport(d *likelihood.Data, rep *infer.ReadReport, c inspectConfig) (
 	if rep.Trace {
 		kind = "state trace"
 	}
-	dt := table{Title: "Data read", Columns: []string{"quantity", "value"}, Rows: [][]string{
-		{"records", strconv.Itoa(len(d.Records))},
-		{"events", strconv.Itoa(p.Events)},
-		{"observed time (first event to end)", num(p.Duration)},
-		{"records with a known end", strconv.Itoa(p.Ends)},
-		{"labels", strings.Join(d.Labels, " ")},
-		{"zero gaps (equal timestamps)", strconv.Itoa(dups)},
-		{"file kind", kind},
-	}}
+	dt := output.NewTable("data", "Data read", "quantity", output.Col("value", "value", ""), output.Col("unit", "unit", ""))
+	dt.Add("records", "records", output.Count(len(d.Records)), output.Empty())
+	dt.Add("events", "events", output.Count(p.Events), output.Empty())
+	dt.Add("observed_time", "observed time (first event to end)", output.Num(p.Duration), output.Text(u.Time()))
+	dt.Add("records_with_end", "records with a known end", output.Count(p.Ends), output.Empty())
+	dt.Add("labels", "labels", output.Text(strings.Join(d.Labels, " ")), output.Empty())
+	dt.Add("zero_gaps", "zero gaps (equal timestamps)", output.Count(dups), output.Empty())
+	dt.Add("file_kind", "file kind", output.Text(kind), output.Empty())
 	if rep.Stamp != "" {
-		dt.Rows = append(dt.Rows, []string{"first comment", rep.Stamp})
+		dt.Add("first_comment", "first comment", output.Text(rep.Stamp), output.Empty())
 	}
-	tabs := []table{dt}
+	r.Add(dt)
 
 	// Labels.
-	lt := table{Title: "Labels: counts and rates (1/time)", Columns: []string{"label", "count", "rate", "SE", lvl + " interval", "method", "note"}}
+	lt := output.NewTable("labels", "Labels: counts and rates", "label", append([]output.Column{output.Col("count", "count", "")}, estimateCols(lvl, u.Rate())...)...)
 	for l, name := range d.Labels {
-		e := p.Rates[l]
-		lt.Rows = append(lt.Rows, []string{name, strconv.Itoa(p.Counts[l]), num(e.Value), num(e.SE), interval(e), e.Method, e.Note})
+		lt.Add(output.Key(name), name, append([]output.Cell{output.Count(p.Counts[l])}, estimateCells(p.Rates[l], lvl)...)...)
 	}
-	tabs = append(tabs, lt)
+	r.Add(lt)
 
 	// Current, activity, affinity, fluctuations.
 	if single {
-		ct := table{Title: "Visible edge: current, activity, fluctuations, effective affinity", Columns: []string{"quantity", "value", "SE", lvl + " interval", "method", "note"}}
-		row := func(name string, e infer.Estimate) {
-			ct.Rows = append(ct.Rows, []string{name, num(e.Value), num(e.SE), interval(e), e.Method, e.Note})
-		}
+		ct := output.NewTable("edge", "Visible edge: current, activity, fluctuations, effective affinity", "quantity", estimateUnitCols(lvl)...)
 		pl, mi := c.plus, c.minus
-		row(fmt.Sprintf("current J = (n%s - n%s)/time", pl, mi), p.Current)
-		row(fmt.Sprintf("activity (n%s + n%s)/time", pl, mi), p.Activity)
-		row("diffusion coefficient D of c (1/time), long-time slope", p.Diffusion)
-		row(fmt.Sprintf("Fano factor Var c(t)/|mean c(t)| at t = %s (%g events)", num(p.Window), c.window), p.Fano)
-		row(fmt.Sprintf("F = ln[P(%s|%s)/P(%s|%s)] (k_BT)", pl, pl, mi, mi), p.Affinity)
+		ct.Add("J", fmt.Sprintf("current J = (n%s - n%s)/time", pl, mi), estimateUnitCells(u.Rate(), p.Current, lvl)...)
+		ct.Add("activity", fmt.Sprintf("activity (n%s + n%s)/time", pl, mi), estimateUnitCells(u.Rate(), p.Activity, lvl)...)
+		ct.Add("D", "diffusion coefficient D of c", estimateUnitCells(u.Rate(), p.Diffusion, lvl)...)
+		ct.Add("Fano", fmt.Sprintf("Fano factor at t = %s (%g events)", num(p.Window), c.window), estimateUnitCells("", p.Fano, lvl)...)
+		ct.Add("F", fmt.Sprintf("F = ln[P(%s|%s)/P(%s|%s)]", pl, pl, mi, mi), estimateUnitCells("k_BT", p.Affinity, lvl)...)
 		if c.boot > 0 {
 			fBoot := infer.EffectiveAffinity(d, uint8(s.Plus), uint8(s.Minus), infer.AffinityOptions{Level: s.Level, Bootstrap: c.boot, Seed: c.seed})
 			if fBoot.Method != p.Affinity.Method {
-				row("F, bootstrap", fBoot)
+				ct.Add("F_bootstrap", "F, bootstrap", estimateUnitCells("k_BT", fBoot, lvl)...)
 			}
 		}
-		tabs = append(tabs, ct)
+		ct.Note("D is half the long-time slope of Var c(t); the Fano factor Var c(t)/|mean c(t)| includes the window's boundary offset")
+		r.Add(ct)
 	}
 
 	// P(l'|l).
-	nt := table{Title: "Next label: P(next | last) with exact binomial intervals", Columns: []string{"last", "next", "pairs", "of", "P", lvl + " interval"}}
+	nt := output.NewTable("next", "Next label: P(next | last) with exact binomial intervals", "probability",
+		output.Col("last", "last", ""), output.Col("next", "next", ""), output.Col("pairs", "pairs", ""), output.Col("of", "of", ""),
+		output.Col("P", "P", ""), output.Col("interval", pct(lvl)+" interval", ""))
 	for a, la := range d.Labels {
 		row := 0
 		for _, v := range p.Pairs[a] {
@@ -305,23 +250,26 @@ func inspectReport(d *likelihood.Data, rep *infer.ReadReport, c inspectConfig) (
 		}
 		for b, lb := range d.Labels {
 			e := p.Next[a][b]
-			nt.Rows = append(nt.Rows, []string{la, lb, strconv.Itoa(p.Pairs[a][b]), strconv.Itoa(row), num(e.Value), interval(e)})
+			name := fmt.Sprintf("P(%s|%s)", lb, la)
+			nt.Add(output.Key(name), name, output.Text(la), output.Text(lb), output.Count(p.Pairs[a][b]), output.Count(row), output.Num(e.Value), output.Interval(e.Lo, e.Hi, lvl, "Clopper-Pearson"))
 		}
 	}
-	tabs = append(tabs, nt)
+	r.Add(nt)
 
 	// Gaps.
-	gt := table{Title: "Times between consecutive events, per pair (last -> next)", Columns: []string{"pair", "count", "mean", "median", "CV (sd/mean)"}}
+	gt := output.NewTable("gaps", "Times between consecutive events, per pair", "last -> next",
+		output.Col("count", "count", ""), output.Col("mean", "mean", u.Time()), output.Col("median", "median", u.Time()), output.Col("cv", "CV (sd/mean)", ""))
 	for a, la := range d.Labels {
 		for b, lb := range d.Labels {
 			g := p.Gaps[a][b]
-			gt.Rows = append(gt.Rows, []string{la + " -> " + lb, strconv.Itoa(g.N), num(g.Mean), num(g.Median), num(g.CV)})
+			gt.Add("gap_"+output.Key(la)+"__"+output.Key(lb), la+" -> "+lb, output.Count(g.N), output.Num(g.Mean), output.Num(g.Median), output.Num(g.CV))
 		}
 	}
-	tabs = append(tabs, gt)
+	r.Add(gt)
 
 	// Assumption checks: one Holm-corrected family.
-	at := table{Title: "Checks (one family, Holm-corrected at 5%)", Columns: []string{"test", "statistic", "df", "p", "Holm p", "reading"}}
+	at := output.NewTable("checks", "Checks (one family, Holm-corrected at 5%)", "test",
+		output.Col("statistic", "statistic", ""), output.Col("df", "df", ""), output.Col("p", "p", ""), output.Col("holm_p", "Holm p", ""), output.Col("reading", "reading", ""))
 	co := infer.CheckOptions{Plus: c.plus, Minus: c.minus, Seed: c.seed}
 	if single {
 		// Calibrate the shape test by resampling when affordable
@@ -330,59 +278,63 @@ func inspectReport(d *likelihood.Data, rep *infer.ReadReport, c inspectConfig) (
 		if c.shapeBoot > 0 && nPP+nMM <= 1_000_000 {
 			co.ShapeResamples = c.shapeBoot
 		} else if c.shapeBoot > 0 {
-			r.Notes = append(r.Notes, "shape test: too many gaps to calibrate by resampling; its p-value is conservative (it errs towards no difference)")
+			r.Note("shape test: too many gaps to calibrate by resampling; its p-value is conservative (it errs towards no difference)")
 		}
 	}
-	checks := infer.AssumptionChecks(d, co)
-	for _, ck := range checks {
-		df := ""
+	for _, ck := range infer.AssumptionChecks(d, co) {
+		df := output.Empty()
 		if ck.DF > 0 {
-			df = strconv.Itoa(ck.DF)
+			df = output.Count(ck.DF)
 		}
-		at.Rows = append(at.Rows, []string{ck.Name, num(ck.Stat), df, pval(ck.P), pval(ck.Adjusted), checkReading(ck)})
+		at.Add(output.Key(ck.Name), ck.Name, output.Num(ck.Stat), df, output.P(ck.P), output.P(ck.Adjusted), output.Text(checkReading(ck)))
 	}
 	st := infer.StationarityTest(d)
-	tabs = append(tabs, at)
+	r.Add(at)
 
 	// Entropy-production bounds: do they hold for these data?
 	bv := infer.CheckBounds(d, c.cond)
-	bt := table{Title: "Entropy-production lower bounds (fluct --bounds): do they hold here?", Columns: []string{"decision", "Markov-order p", "why"}}
+	bt := output.NewTable("bounds_decision", "Entropy-production lower bounds (fluct --bounds): do they hold here?", "question",
+		output.Col("decision", "decision", ""), output.Col("markov_p", "Markov-order p", ""), output.Col("why", "why", ""))
 	if bv.Hold {
-		bt.Rows = append(bt.Rows, []string{"may be stated", pval(bv.Markov.P), "given: " + strings.Join(bv.Assumes, "; ")})
+		bt.Add("bounds", "bounds", output.Text("may be stated"), output.P(bv.Markov.P), output.Text("given: "+strings.Join(bv.Assumes, "; ")))
 	} else {
-		bt.Rows = append(bt.Rows, []string{"withheld", pval(bv.Markov.P), bv.Reason()})
+		bt.Add("bounds", "bounds", output.Text("withheld"), output.P(bv.Markov.P), output.Text(bv.Reason()))
 	}
-	tabs = append(tabs, bt)
+	r.Add(bt)
 
 	// Per record.
 	if c.perRecord {
-		pt := table{Title: "Per record", Columns: []string{"record", "events", "zero gaps", "time", "J", "F", "F SE", fmt.Sprintf("P(%s|%s)", c.plus, c.plus), fmt.Sprintf("P(%s|%s)", c.minus, c.minus), "halves P(next|last) p", "halves mean gap p"}}
+		pt := output.NewTable("records", "Per record", "record",
+			output.Col("events", "events", ""), output.Col("zero_gaps", "zero gaps", ""), output.Col("time", "time", u.Time()),
+			output.Col("J", "J", u.Rate()), output.Col("F", "F", "k_BT"), output.Col("F_se", "F SE", "k_BT"),
+			output.Col("P_plus_plus", fmt.Sprintf("P(%s|%s)", c.plus, c.plus), ""), output.Col("P_minus_minus", fmt.Sprintf("P(%s|%s)", c.minus, c.minus), ""),
+			output.Col("halves_next_p", "halves P(next|last) p", ""), output.Col("halves_gap_p", "halves mean gap p", ""))
 		for i, pr := range s.Records {
 			id := pr.ID
 			if id == "" {
 				id = "(one record)"
 			}
-			pp, pm := "n/a", "n/a"
+			pp, pm := output.Undefined("no visible edge"), output.Undefined("no visible edge")
 			if single {
-				pp, pm = num(pr.Next[s.Plus][s.Plus].Value), num(pr.Next[s.Minus][s.Minus].Value)
+				pp, pm = output.Num(pr.Next[s.Plus][s.Plus].Value), output.Num(pr.Next[s.Minus][s.Minus].Value)
 			}
 			rs := st.Records[i]
-			pt.Rows = append(pt.Rows, []string{id, strconv.Itoa(pr.Events), strconv.Itoa(rep.Records[i].Duplicates), num(pr.Duration), num(pr.Current.Value), num(pr.Affinity.Value), num(pr.Affinity.SE), pp, pm, pval(rs.Next.P), pval(rs.MeanGap.P)})
+			pt.Add(fmt.Sprintf("record_%d", i+1), id, output.Count(pr.Events), output.Count(rep.Records[i].Duplicates), output.Num(pr.Duration),
+				output.Num(pr.Current.Value), output.Num(pr.Affinity.Value), output.Num(pr.Affinity.SE), pp, pm, output.P(rs.Next.P), output.P(rs.MeanGap.P))
 		}
-		tabs = append(tabs, pt)
+		r.Add(pt)
 	}
-	r.Tables = tabs
 
 	// Notes.
 	r.Notes = append(r.Notes, s.Notes...)
 	if dups > 0 {
-		r.Notes = append(r.Notes, fmt.Sprintf("%d zero gaps (equal timestamps): exact likelihoods give them no meaningful density; check the clock resolution", dups))
+		r.Note("%d zero gaps (equal timestamps): exact likelihoods give them no meaningful density; check the clock resolution", dups)
 	}
 	if len(rep.Ignored) > 0 {
-		r.Notes = append(r.Notes, "columns not used: "+strings.Join(rep.Ignored, ", "))
+		r.Note("columns not used: %s", strings.Join(rep.Ignored, ", "))
 	}
 	if rep.Trace {
-		r.Notes = append(r.Notes, "state trace: event times are known only to the sampling interval")
+		r.Note("state trace: event times are known only to the sampling interval")
 	}
 	r.Notes = append(r.Notes,
 		"all estimates assume the records are stationary and share one process; see the drift tests",

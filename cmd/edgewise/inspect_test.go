@@ -2,7 +2,7 @@ package main
 
 import (
 	"bytes"
-	"encoding/json"
+	"math"
 	"os"
 	"path/filepath"
 	"strings"
@@ -17,14 +17,14 @@ func TestInspectDemo(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	sum := checksum(src)[:12]
-	for _, f := range []string{"table", "markdown", "latex", "csv", "json"} {
+	sum := checksum(src)
+	for _, f := range []string{"table", "markdown", "latex", "csv"} {
 		var out, errb bytes.Buffer
 		if code := run([]string{"inspect", "../../testdata/ring3-demo.csv", "--per-record", "--boot", "200", "--seed", "7", "--format", f}, &out, &errb); code != 0 {
 			t.Fatalf("%s: code %d: %s", f, code, errb.String())
 		}
 		o := out.String()
-		for _, want := range []string{"4.3739", "seed 7", "shape of the ++ and --", "second-order Markov", "Holm p", "may be stated"} {
+		for _, want := range []string{"4.3739", "seed 7", "shape of the ++ and --", "second-order Markov", "Holm p", "may be stated", sum[:12]} {
 			if !strings.Contains(o, want) {
 				t.Errorf("%s: %q missing", f, want)
 			}
@@ -45,15 +45,13 @@ func TestInspectDemo(t *testing.T) {
 				}
 			}
 		}
-		if f != "json" && !strings.Contains(o, sum) {
-			t.Errorf("%s: checksum %s missing", f, sum)
-		}
-		if f == "json" {
-			var r report
-			if err := json.Unmarshal(out.Bytes(), &r); err != nil || r.Checksum != checksum(src) || len(r.Tables) < 6 {
-				t.Errorf("json: %v, %d tables", err, len(r.Tables))
-			}
-		}
+	}
+	r := runJSON(t, "inspect", "../../testdata/ring3-demo.csv", "--per-record", "--boot", "200", "--seed", "7")
+	if len(r.Stamp.Inputs) != 1 || r.Stamp.Inputs[0].SHA256 != sum || r.Stamp.Seed == nil || *r.Stamp.Seed != 7 || len(r.Tables) < 6 {
+		t.Errorf("json stamp %+v, %d tables", r.Stamp, len(r.Tables))
+	}
+	if F := r.num(t, "edge", "F", "value"); math.Abs(F-4.3739) > 1e-4 {
+		t.Errorf("F = %g", F)
 	}
 }
 
@@ -76,21 +74,21 @@ func TestInspectStdinAndErrors(t *testing.T) {
 	if code := run([]string{"inspect", "-", "--rename", "fwd=+,bwd=-", "--format", "csv"}, &out, &errb); code != 0 {
 		t.Fatalf("stdin: code %d: %s", code, errb.String())
 	}
-	if !strings.Contains(out.String(), "input stdin") || !strings.Contains(out.String(), "\n+,4,") {
+	if !strings.Contains(out.String(), "; stdin sha256") || !strings.Contains(out.String(), "\nlabels,plus,+,count,count,,count,4,") {
 		t.Errorf("stdin output:\n%s", out.String())
 	}
 	bad := filepath.Join(dir, "bad.csv")
 	os.WriteFile(bad, []byte("time,label\n1,+\n0.5,-\n"), 0o644)
 	out.Reset()
 	errb.Reset()
-	if code := run([]string{"inspect", bad}, &out, &errb); code != 1 || !strings.Contains(errb.String(), "bad.csv:3:1: time:") {
+	if code := run([]string{"inspect", bad}, &out, &errb); code != 1 || !strings.Contains(errb.String(), "edgewise inspect: ") || !strings.Contains(errb.String(), "bad.csv:3:1: time:") {
 		t.Errorf("bad file: code %d, stderr %q", code, errb.String())
 	}
 	if code := run([]string{"inspect", good, "--rename", "fwd=+"}, &out, &errb); code != 1 || !strings.Contains(errb.String(), `unknown label "bwd"`) {
 		t.Errorf("unknown label: code %d, stderr %q", code, errb.String())
 	}
 	if code := run([]string{"inspect", good, "--rename", "fwd"}, &out, &errb); code != 2 {
-		t.Errorf("bad --labels: code %d", code)
+		t.Errorf("bad --rename: code %d", code)
 	}
 	if code := run([]string{"inspect", good, "--format", "nope"}, &out, &errb); code != 2 {
 		t.Errorf("bad format: code %d", code)
@@ -107,39 +105,80 @@ func TestInspectStdinAndErrors(t *testing.T) {
 	if code := run([]string{"inspect", good, "--rename", "fwd=+,bwd=-", "-o", o, "--force"}, &out, &errb); code != 0 {
 		t.Errorf("--force: code %d", code)
 	}
+	// The old name of --fano-events still works, with a note on stderr.
+	errb.Reset()
+	if code := run([]string{"inspect", good, "--rename", "fwd=+,bwd=-", "--window", "3", "-o", "/dev/null"}, &out, &errb); code != 0 || !strings.Contains(errb.String(), "--fano-events") {
+		t.Errorf("--window: code %d: %s", code, errb.String())
+	}
 }
 
 // TestSimulateInspectRoundTrip: records written by simulate are read back
-// by inspect with the right counts.
+// by inspect with the right counts, and the time unit of the stamp is
+// used and said.
 func TestSimulateInspectRoundTrip(t *testing.T) {
 	dir := t.TempDir()
 	p := filepath.Join(dir, "sim.csv")
 	var out, errb bytes.Buffer
-	if code := run([]string{"simulate", "../../testdata/ring3.toml", "-n", "3000", "-r", "2", "--seed", "3", "-o", p}, &out, &errb); code != 0 {
+	if code := run([]string{"simulate", "../../testdata/ring3.toml", "-n", "3000", "-r", "2", "--seed", "3", "--time-unit", "ms", "-o", p}, &out, &errb); code != 0 {
 		t.Fatalf("simulate: %s", errb.String())
 	}
-	if code := run([]string{"inspect", p, "--format", "csv"}, &out, &errb); code != 0 {
-		t.Fatalf("inspect: %s", errb.String())
+	r := runJSON(t, "inspect", p, "--boot", "0", "--shape-resamples", "0")
+	if r.num(t, "data", "records", "value") != 2 || r.num(t, "data", "events", "value") != 6000 {
+		t.Errorf("records/events wrong")
 	}
-	if !strings.Contains(out.String(), "records,2\n") || !strings.Contains(out.String(), "events,6000\n") {
-		t.Errorf("output:\n%s", out.String())
+	if r.Stamp.TimeUnit == nil || *r.Stamp.TimeUnit != "ms" || r.table(t, "labels").Columns[1].Unit != "1/ms" {
+		t.Errorf("time unit not read back: %v", r.table(t, "labels").Columns)
+	}
+	found := false
+	for _, n := range r.Notes {
+		found = found || strings.Contains(n, "time unit ms read from the records' stamp")
+	}
+	if !found {
+		t.Errorf("no note on the time unit: %v", r.Notes)
 	}
 }
 
 // TestInspectTrace: a state trace becomes labelled events "X>Y"; the
 // shipped example (600 samples of a three-state ring) has 58 changes of
-// state, of which 13 are A>B.
+// state, of which 13 are A>B. Without --edge, its six labels are an error
+// that names them and shows the --edge to write.
 func TestInspectTrace(t *testing.T) {
-	var out, errb bytes.Buffer
-	if code := run([]string{"inspect", "../../testdata/infer/ring3-trace.csv", "--edge", "A>B,B>A", "--format", "csv"}, &out, &errb); code != 0 {
-		t.Fatalf("code %d: %s", code, errb.String())
+	r := runJSON(t, "inspect", "../../testdata/infer/ring3-trace.csv", "--edge", "A>B,B>A")
+	if r.num(t, "data", "events", "value") != 58 || r.cell(t, "data", "file_kind", "value").Text != "state trace" || r.num(t, "labels", "A_B", "count") != 13 {
+		t.Errorf("trace counts wrong")
 	}
-	for _, want := range []string{"events,58\n", "file kind,state trace\n", "A>B,13,", "neither a ++ pair"} {
-		if !strings.Contains(out.String(), want) {
-			t.Errorf("%q missing:\n%s", want, out.String())
-		}
-	}
-	if strings.Contains(out.String(), "F, bootstrap") {
+	if _, ok := r.table(t, "edge").row("F_bootstrap"); ok {
 		t.Error("bootstrap row shown for an undefined F")
+	}
+	if c := r.cell(t, "edge", "F", "value"); c.Kind != "undefined" || !strings.Contains(c.Reason, "neither a ++ pair") {
+		t.Errorf("F: %+v", c)
+	}
+	var out, errb bytes.Buffer
+	if code := run([]string{"inspect", "../../testdata/infer/ring3-trace.csv"}, &out, &errb); code != 2 || !strings.Contains(errb.String(), "6 labels") || !strings.Contains(errb.String(), "--edge A>B,") {
+		t.Errorf("many labels without --edge: code %d: %s", code, errb.String())
+	}
+}
+
+// TestWrongKindOfFile: a spec where records are expected, and records
+// where a spec is expected, get a message saying so and the usage line,
+// with exit code 2.
+func TestWrongKindOfFile(t *testing.T) {
+	for _, c := range []struct {
+		args []string
+		want string
+	}{
+		{[]string{"inspect", "../../testdata/ring3.toml"}, "this looks like a model spec (TOML), not records"},
+		{[]string{"fluct", "../../testdata/ring3.toml"}, "this looks like a model spec (TOML), not records"},
+		{[]string{"describe", "../../testdata/ring3-demo.csv"}, "this looks like records"},
+		{[]string{"simulate", "../../testdata/ring3-demo.csv"}, "this looks like records"},
+		{[]string{"predict", "../../testdata/ring3-demo.csv"}, "this looks like records"},
+		{[]string{"predict", "../../testdata/ring3.toml", "../../testdata/ring3-demo.csv"}, "this looks like records"},
+		{[]string{"predict", "../../testdata/ring3.toml", "../../testdata/ring3.toml"}, "this looks like a model spec (TOML), not records"},
+	} {
+		var out, errb bytes.Buffer
+		code := run(c.args, &out, &errb)
+		if code != 2 || !strings.Contains(errb.String(), c.want) || !strings.Contains(errb.String(), "Usage: edgewise "+c.args[0]) {
+			t.Errorf("%v: code %d: %s", c.args, code, errb.String())
+		}
 	}
 }

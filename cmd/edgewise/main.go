@@ -43,6 +43,14 @@ func run(args []string, stdout, stderr io.Writer) int {
 	case "predict":
 		return cmdPredict(args[1:], stdout, stderr)
 	case "help", "-h", "--help":
+		if len(args) > 1 && args[0] == "help" {
+			if _, ok := commands[args[1]]; ok {
+				return run([]string{args[1], "--help"}, stdout, stderr)
+			}
+			fmt.Fprintf(stderr, "edgewise help: unknown command %q\n", args[1])
+			usage(stderr)
+			return 2
+		}
 		usage(stdout)
 		return 0
 	default:
@@ -65,7 +73,7 @@ Commands:
   fluct     count-stopped fluctuation test and entropy production bounds from records
   predict   what a model predicts for data through an instrument, and how records compare
   version   print the tool version
-  help      show this help
+  help      show this help; "edgewise help CMD" is "edgewise CMD --help"
 
 Example:
   edgewise describe testdata/ring3.toml
@@ -99,11 +107,8 @@ func parseFlags(fs *pflag.FlagSet, args []string) int {
 	return -1
 }
 
-// usageError reports a usage problem of a subcommand and returns exit code 2.
-func usageError(stderr io.Writer, cmd, format string, a ...any) int {
-	fmt.Fprintf(stderr, "edgewise %s: %s (see edgewise %s --help)\n", cmd, fmt.Sprintf(format, a...), cmd)
-	return 2
-}
+// commands lists the subcommands, for "edgewise help CMD".
+var commands = map[string]bool{"describe": true, "simulate": true, "inspect": true, "fluct": true, "predict": true}
 
 // loadModel reads and parses a model spec and builds its network at the
 // start values. src is returned for the checksum stamped on outputs.
@@ -111,6 +116,9 @@ func loadModel(path string) ([]byte, *models.Model, *models.Network, error) {
 	src, err := os.ReadFile(path)
 	if err != nil {
 		return nil, nil, nil, err
+	}
+	if sniff(src[:min(len(src), 4096)]) == "records" {
+		return nil, nil, nil, &kindError{path: path, is: recordsKind, want: specKind}
 	}
 	m, err := models.Parse(bytes.NewReader(src), path)
 	if err != nil {

@@ -3,7 +3,7 @@ package main
 import (
 	"bytes"
 	"encoding/csv"
-	"encoding/json"
+	"math"
 	"os"
 	"path/filepath"
 	"strings"
@@ -23,13 +23,34 @@ func TestRunExitCodes(t *testing.T) {
 	}
 }
 
+// TestHelpCommand: "edgewise help CMD" prints exactly "edgewise CMD
+// --help", for every command.
+func TestHelpCommand(t *testing.T) {
+	for cmd := range commands {
+		var a, b, errb bytes.Buffer
+		if code := run([]string{"help", cmd}, &a, &errb); code != 0 {
+			t.Fatalf("help %s: code %d", cmd, code)
+		}
+		if code := run([]string{cmd, "--help"}, &b, &errb); code != 0 {
+			t.Fatalf("%s --help: code %d", cmd, code)
+		}
+		if a.String() != b.String() || !strings.Contains(a.String(), "Example:") {
+			t.Errorf("help %s differs from %s --help", cmd, cmd)
+		}
+	}
+	var out, errb bytes.Buffer
+	if code := run([]string{"help", "nope"}, &out, &errb); code != 2 {
+		t.Errorf("help of an unknown command: code %d", code)
+	}
+}
+
 // TestDescribeRing3: the cycle affinity of the shipped ring equals
 // ln(3*2*1.5/(0.5*0.4*0.6)) = 4.3175 (cycle affinity definition,
 // Schnakenberg, Rev. Mod. Phys. 48, 571 (1976)), in every format: the csv
 // is parsed with comment lines skipped, the json decoded, and the cell is
 // found in the cycles table, with its sign.
 func TestDescribeRing3(t *testing.T) {
-	want := []string{"B-C-A-B", "4.3175"}
+	A := math.Log(3.0 * 2 * 1.5 / (0.5 * 0.4 * 0.6))
 	for _, f := range []string{"table", "markdown", "latex", "csv", "json"} {
 		var out, errb bytes.Buffer
 		if code := run([]string{"describe", "../../testdata/ring3.toml", "--format", f}, &out, &errb); code != 0 {
@@ -39,35 +60,27 @@ func TestDescribeRing3(t *testing.T) {
 		switch f {
 		case "csv":
 			cr := csv.NewReader(strings.NewReader(out.String()))
-			cr.Comment, cr.FieldsPerRecord = '#', -1
+			cr.Comment = '#'
 			rows, err := cr.ReadAll()
 			if err != nil {
 				t.Fatalf("csv does not parse: %v", err)
 			}
 			for _, row := range rows {
-				found = found || (len(row) >= 2 && row[0] == want[0] && row[1] == want[1])
+				found = found || (row[0] == "cycles" && row[2] == "B-C-A-B" && row[3] == "affinity" && strings.HasPrefix(row[7], "4.3174"))
 			}
 		case "json":
-			var r report
-			if err := json.Unmarshal(out.Bytes(), &r); err != nil {
-				t.Fatalf("json does not parse: %v", err)
-			}
-			for _, tb := range r.Tables {
-				for _, row := range tb.Rows {
-					found = found || (tb.Title == "Fundamental cycles" && row[0] == want[0] && row[1] == want[1])
-				}
-			}
+			r := runJSON(t, "describe", "../../testdata/ring3.toml")
+			found = r.table(t, "cycles").Rows[0].Label == "B-C-A-B" && math.Abs(r.num(t, "cycles", "cycle_1", "affinity")-A) < 1e-12
 		default:
-			sep := map[string]string{"table": " │ ", "markdown": " | ", "latex": " & "}[f]
-			found = strings.Contains(out.String(), want[0]+sep+want[1])
+			found = strings.Contains(out.String(), "B-C-A-B") && strings.Contains(out.String(), "4.3175")
 		}
 		if !found {
-			t.Errorf("%s: cycle %s with affinity %s missing:\n%s", f, want[0], want[1], out.String())
+			t.Errorf("%s: cycle B-C-A-B with affinity 4.3175 missing:\n%s", f, out.String())
 		}
 	}
 	var out, errb bytes.Buffer
-	if code := run([]string{"describe", "missing.toml"}, &out, &errb); code != 1 {
-		t.Errorf("missing file: code %d, want 1", code)
+	if code := run([]string{"describe", "missing.toml"}, &out, &errb); code != 1 || !strings.HasPrefix(errb.String(), "edgewise describe: ") {
+		t.Errorf("missing file: code %d, %q", code, errb.String())
 	}
 	if code := run([]string{"describe", "--format", "nope", "../../testdata/ring3.toml"}, &out, &errb); code != 2 {
 		t.Errorf("bad format: code %d, want 2", code)
@@ -77,44 +90,49 @@ func TestDescribeRing3(t *testing.T) {
 	}
 }
 
-// TestDescribeConstraintsAndLatex: a spec with two affinity constraints
-// shows the solved rates and the cycles with exactly the imposed
-// affinities; latex output is a booktabs table with escaped specials.
-func TestDescribeConstraintsAndLatex(t *testing.T) {
-	var out, errb bytes.Buffer
-	if code := run([]string{"describe", "../../testdata/offedge.toml", "-f", "csv"}, &out, &errb); code != 0 {
-		t.Fatalf("code %d: %s", code, errb.String())
+// TestDescribeConstraints: a spec with two affinity constraints shows the
+// solved rates and the cycles with exactly the imposed affinities; at
+// detailed balance currents and sigma are exactly 0 (not round-off).
+func TestDescribeConstraints(t *testing.T) {
+	r := runJSON(t, "describe", "../../testdata/offedge.toml")
+	if v := r.num(t, "parameters", "kbo", "value"); math.Abs(v-0.36244) > 1e-5 {
+		t.Errorf("kbo = %g", v)
 	}
-	for _, want := range []string{"kbo,rate,0.36244,solved (affinity[0])", "affinity[0],Open-Shut-Bound-Open,1,kbo", "Shut-Bound-Open-Shut,1,", "Bound-Charged-Open-Bound,4,"} {
-		if !strings.Contains(out.String(), want) {
-			t.Errorf("missing %q in\n%s", want, out.String())
+	if c := r.cell(t, "affinity_constraints", "affinity_0", "cycle"); c.Text != "Open-Shut-Bound-Open" {
+		t.Errorf("constraint cycle %q", c.Text)
+	}
+	want := map[string]float64{"Shut-Bound-Open-Shut": 1, "Bound-Charged-Open-Bound": 4}
+	for _, row := range r.table(t, "cycles").Rows {
+		if w, ok := want[row.Label]; ok {
+			if v := *row.Cells["affinity"].Value; math.Abs(v-w) > 1e-12 {
+				t.Errorf("%s: affinity %g, want %g", row.Label, v, w)
+			}
+			delete(want, row.Label)
 		}
 	}
-	out.Reset()
-	if code := run([]string{"describe", "../../testdata/ring3.toml", "-f", "latex"}, &out, &errb); code != 0 {
-		t.Fatalf("code %d: %s", code, errb.String())
+	if len(want) > 0 {
+		t.Errorf("cycles missing: %v", want)
 	}
-	s := out.String()
-	if strings.Count(s, "\\toprule") != strings.Count(s, "\\bottomrule") || !strings.Contains(s, "affinity (k\\_BT)") || strings.Contains(s, "k_BT") {
-		t.Errorf("latex output malformed:\n%s", s)
+	b := runJSON(t, "describe", "../../testdata/balanced.toml")
+	if c := b.cell(t, "summary", "sigma", "value"); c.Kind != "zero" {
+		t.Errorf("balanced sigma: %+v, want an exact zero", c)
 	}
-	if got := texRow([]string{"[1, 2]", "[3]"}); got != `{}[1, 2] & [3]` {
-		t.Errorf("texRow: %s", got)
-	}
-	if got := texEscape(`50% of a_b & {x} $1 #2 ~ ^ \`); got != `50\% of a\_b \& \{x\} \$1 \#2 \textasciitilde{} \textasciicircum{} \textbackslash{}` {
-		t.Errorf("texEscape: %s", got)
+	for _, row := range b.table(t, "edges").Rows {
+		if c := row.Cells["current"]; c.Kind != "zero" {
+			t.Errorf("balanced current %s: %+v", row.Label, c)
+		}
 	}
 }
 
 // TestSimulateDeterministicAndSafe: the same seed gives byte-identical
 // files, an existing file is kept without --force, and the event count is
-// as asked.
+// as asked; the stamp records the instrument, time unit and edge.
 func TestSimulateDeterministicAndSafe(t *testing.T) {
 	dir := t.TempDir()
 	a, b := filepath.Join(dir, "a.csv"), filepath.Join(dir, "b.csv")
 	var out, errb bytes.Buffer
 	for _, p := range []string{a, b} {
-		if code := run([]string{"simulate", "../../testdata/ring3.toml", "-n", "500", "-r", "3", "--seed", "9", "-o", p}, &out, &errb); code != 0 {
+		if code := run([]string{"simulate", "../../testdata/ring3.toml", "-n", "500", "-r", "3", "--seed", "9", "--time-unit", "ms", "-o", p}, &out, &errb); code != 0 {
 			t.Fatalf("code %d: %s", code, errb.String())
 		}
 	}
@@ -126,6 +144,13 @@ func TestSimulateDeterministicAndSafe(t *testing.T) {
 	if n := strings.Count(string(x), "\n"); n != 2+1500 {
 		t.Fatalf("%d lines, want 1502", n)
 	}
+	first, _, _ := strings.Cut(string(x), "\n")
+	st := parseSimStamp(strings.TrimPrefix(first, "# "))
+	for k, v := range map[string]string{"seed": "9", "events": "500", "records": "3", "dead_time": "0", "frame": "0", "time_unit": "ms", "edge": "+,-", "spec": "ring3.toml"} {
+		if st[k] != v {
+			t.Errorf("stamp %s = %q, want %q (%s)", k, st[k], v, first)
+		}
+	}
 	if code := run([]string{"simulate", "../../testdata/ring3.toml", "-o", a}, &out, &errb); code != 1 {
 		t.Fatalf("overwrite without --force: code %d", code)
 	}
@@ -136,5 +161,17 @@ func TestSimulateDeterministicAndSafe(t *testing.T) {
 	// Outputs are readable by others (CreateTemp alone would leave 0600).
 	if st, err := os.Stat(a); err != nil || st.Mode().Perm() != 0o644 {
 		t.Fatalf("output mode %v (%v), want -rw-r--r--", st.Mode().Perm(), err)
+	}
+}
+
+// TestParseOldStamp: the stamp of the shipped demo records (written
+// before the stamp had semicolons) is read.
+func TestParseOldStamp(t *testing.T) {
+	st := parseSimStamp("edgewise 0.1.0-dev simulate ring3.toml sha256 7ac5994f2645 seed 1 events 5000 records 4 dead-time 0.5 frame 0")
+	if st["dead_time"] != "0.5" || st["seed"] != "1" || st["records"] != "4" {
+		t.Errorf("%v", st)
+	}
+	if parseSimStamp("made by hand") != nil {
+		t.Error("a plain comment read as a stamp")
 	}
 }

@@ -2,106 +2,88 @@ package main
 
 import (
 	"bytes"
-	"encoding/json"
 	"fmt"
 	"math"
 	"os"
 	"path/filepath"
-	"strconv"
 	"strings"
 	"testing"
 )
-
-// predictJSON runs predict with args and decodes its json report.
-func predictJSON(t *testing.T, args ...string) report {
-	t.Helper()
-	var out, errb bytes.Buffer
-	if code := run(append([]string{"predict", "-f", "json"}, args...), &out, &errb); code != 0 {
-		t.Fatalf("predict %v: code %d: %s", args, code, errb.String())
-	}
-	var r report
-	if err := json.Unmarshal(out.Bytes(), &r); err != nil {
-		t.Fatal(err)
-	}
-	return r
-}
-
-// cell returns the value in the row whose first cell starts with key.
-func cell(t *testing.T, r report, title, key string, col int) float64 {
-	t.Helper()
-	for _, tb := range r.Tables {
-		if !strings.HasPrefix(tb.Title, title) {
-			continue
-		}
-		for _, row := range tb.Rows {
-			if strings.HasPrefix(row[0], key) {
-				v, err := strconv.ParseFloat(row[col], 64)
-				if err != nil {
-					t.Fatalf("%s/%s: %q", title, key, row[col])
-				}
-				return v
-			}
-		}
-	}
-	t.Fatalf("no row %q in table %q", key, title)
-	return 0
-}
 
 // TestPredictRing3: for a unicyclic ring with perfect detection the
 // effective affinity equals the cycle affinity ln(3*2*1.5/(0.5*0.4*0.6)) =
 // 4.31749 (Polettini and Esposito, PRL 119, 240601 (2017)), F*J equals
 // sigma (Schnakenberg's sigma = J A for one cycle), the post-selected
-// count-stopped slope is F for every n, and the raw slope is not. The
-// printed values have 5 significant digits, hence the tolerances.
+// count-stopped slope is F for every n, and the raw slope is not. JSON
+// carries full precision, hence the tight tolerances.
 func TestPredictRing3(t *testing.T) {
-	r := predictJSON(t, "../../testdata/ring3.toml", "--windows", "5,20")
+	r := runJSON(t, "predict", "../../testdata/ring3.toml", "--windows", "5,20")
 	A := math.Log(3.0 * 2 * 1.5 / (0.5 * 0.4 * 0.6))
-	F := cell(t, r, "Predicted rates", "effective affinity", 1)
-	if math.Abs(F-A) > 1e-4 {
+	if F := r.num(t, "predicted", "F", "value"); math.Abs(F-A) > 1e-9 {
 		t.Errorf("F = %g, want %g", F, A)
 	}
-	sigma := cell(t, r, "Predicted rates", "entropy production", 1)
-	if fj := cell(t, r, "Predicted rates", "lower bound F*J", 1); math.Abs(fj-sigma) > 1e-4*sigma {
+	sigma := r.num(t, "predicted", "sigma", "value")
+	if fj := r.num(t, "predicted", "FJ", "value"); math.Abs(fj-sigma) > 1e-9*sigma {
 		t.Errorf("F*J = %g, sigma = %g", fj, sigma)
 	}
-	for _, n := range []string{"5", "20"} {
-		if post := cell(t, r, "Count-stopped", n, 2); math.Abs(post-A) > 1e-4 {
-			t.Errorf("n=%s: post-selected slope %g, want %g", n, post, A)
+	for _, n := range []string{"n5", "n20"} {
+		if post := r.num(t, "count_stopped", n, "post_selected"); math.Abs(post-A) > 1e-6 {
+			t.Errorf("%s: post-selected slope %g, want %g", n, post, A)
 		}
-		if raw := cell(t, r, "Count-stopped", n, 1); math.Abs(raw-A) < 0.05 {
-			t.Errorf("n=%s: raw slope %g should carry the boundary term", n, raw)
+		if raw := r.num(t, "count_stopped", n, "all"); math.Abs(raw-A) < 0.05 {
+			t.Errorf("%s: raw slope %g should carry the boundary term", n, raw)
 		}
 	}
+}
+
+// againstRows returns the keys of the model-against-data rows.
+func againstKeys(t *testing.T, r *jReport) []string {
+	var keys []string
+	for _, row := range r.table(t, "against").Rows {
+		keys = append(keys, row.Key)
+	}
+	return keys
 }
 
 // TestPredictAgainstData: the demo records were simulated from ring3, so
 // every z-score is small (|z| < 4) and no check rejects after Holm, while
 // the same records set against ring4 are rejected; a dead time or missed
 // events lower the predicted F below the cycle affinity (design notes,
-// section 7).
+// section 7). --data still works as the old way to give the records.
 func TestPredictAgainstData(t *testing.T) {
-	r := predictJSON(t, "../../testdata/ring3.toml", "--data", "../../testdata/ring3-demo.csv", "--windows", "5", "--fixed-time")
-	for _, key := range []string{"P(+|+)", "P(-|-)", "effective affinity", "current J", "fluctuation slope, n = 5, all", "fluctuation slope, n = 5, post", "fluctuation slope, n = 5, fixed"} {
-		if z := cell(t, r, "Model against data", key, 7); math.Abs(z) > 4 {
+	r := runJSON(t, "predict", "../../testdata/ring3-demo.csv", "../../testdata/ring3.toml", "--windows", "5", "--fixed-time")
+	keys := againstKeys(t, r)
+	if len(keys) != 7 {
+		t.Errorf("rows %v, want P(+|+), P(-|-), F, J and three slopes", keys)
+	}
+	for _, key := range keys {
+		if z := r.num(t, "against", key, "z"); math.Abs(z) > 4 {
 			t.Errorf("%s: z = %g", key, z)
 		}
-		if p := cell(t, r, "Model against data", key, 6); !(p > 0.05) {
+		if p := r.num(t, "against", key, "holm_p"); !(p > 0.05) {
 			t.Errorf("%s: Holm p = %g", key, p)
 		}
 	}
-	wrong := predictJSON(t, "../../testdata/ring4.toml", "--data", "../../testdata/ring3-demo.csv", "--windows", "5")
-	if z := cell(t, wrong, "Model against data", "effective affinity", 7); !(z > 10) || math.IsInf(z, 0) {
+	old := runJSON(t, "predict", "../../testdata/ring3.toml", "--data", "../../testdata/ring3-demo.csv", "--windows", "5", "--fixed-time")
+	if a, b := r.num(t, "loglik", "lnL", "value"), old.num(t, "loglik", "lnL", "value"); a != b {
+		t.Errorf("--data gives ln L %v, positional %v", b, a)
+	}
+	wrong := runJSON(t, "predict", "../../testdata/ring3-demo.csv", "../../testdata/ring4.toml", "--windows", "5")
+	if z := wrong.num(t, "against", "F", "z"); !(z > 10) || math.IsInf(z, 0) {
 		t.Errorf("ring3 data against ring4: z of F = %g, want large and finite", z)
 	}
-	if ll := cell(t, r, "Log-likelihood", "ln L per gap", 1); !(ll < 0) || math.IsInf(ll, 0) {
+	if ll := r.num(t, "loglik", "lnL_per_gap", "value"); !(ll < 0) || math.IsInf(ll, 0) {
 		t.Errorf("ln L per gap %g", ll)
 	}
-	if !strings.Contains(r.Checksum, " ") {
-		t.Errorf("stamp should carry both inputs' checksums: %q", r.Checksum)
+	if c := r.cell(t, "loglik", "lnL", "value"); c.Kind != "fixed" {
+		t.Errorf("ln L cell %+v, want fixed decimals", c)
+	}
+	if len(r.Stamp.Inputs) != 2 {
+		t.Errorf("stamp should carry both inputs' checksums: %+v", r.Stamp.Inputs)
 	}
 	A := math.Log(3.0 * 2 * 1.5 / (0.5 * 0.4 * 0.6))
-	dead := predictJSON(t, "../../testdata/ring3.toml", "--dead-time", "0.02", "--windows", "5")
-	if F := cell(t, dead, "Predicted rates", "effective affinity", 1); !(F < A-0.01) {
+	dead := runJSON(t, "predict", "../../testdata/ring3.toml", "--dead-time", "0.02", "--windows", "5")
+	if F := dead.num(t, "predicted", "F", "value"); !(F < A-0.01) {
 		t.Errorf("dead time: F = %g, want below %g", F, A)
 	}
 }
@@ -119,19 +101,14 @@ func TestPredictSmallCounts(t *testing.T) {
 		fmt.Fprintf(&b, "%g,%c\n", 0.7*float64(i)+0.1*float64(i%3), c)
 	}
 	os.WriteFile(small, []byte(b.String()), 0o644)
-	r := predictJSON(t, "../../testdata/ring3.toml", "--data", small, "--windows", "5")
-	for _, tb := range r.Tables {
-		if !strings.HasPrefix(tb.Title, "Model against data") {
-			continue
+	r := runJSON(t, "predict", small, "../../testdata/ring3.toml", "--windows", "5")
+	for _, key := range againstKeys(t, r) {
+		z := r.num(t, "against", key, "z")
+		if math.IsInf(z, 0) || math.IsNaN(z) {
+			t.Errorf("%s: z %v", key, z)
 		}
-		for _, row := range tb.Rows {
-			z, err := strconv.ParseFloat(row[7], 64)
-			if err != nil || math.IsInf(z, 0) || math.IsNaN(z) {
-				t.Errorf("%s: z %q", row[0], row[7])
-			}
-			if p, err := strconv.ParseFloat(row[5], 64); err != nil || p < 0 || p > 1 {
-				t.Errorf("%s: p %q", row[0], row[5])
-			}
+		if p := r.num(t, "against", key, "p"); !(p >= 0 && p <= 1) {
+			t.Errorf("%s: p %v", key, p)
 		}
 	}
 }
@@ -143,12 +120,15 @@ func TestPredictErrors(t *testing.T) {
 	bad := filepath.Join(dir, "bad.csv")
 	os.WriteFile(bad, []byte("time,label\n0.5,+\n0.7,x\n"), 0o644)
 	var out, errb bytes.Buffer
-	if code := run([]string{"predict", "../../testdata/ring3.toml", "--data", bad}, &out, &errb); code != 1 || !strings.Contains(errb.String(), "bad.csv:3") {
+	if code := run([]string{"predict", bad, "../../testdata/ring3.toml"}, &out, &errb); code != 1 || !strings.Contains(errb.String(), "bad.csv:3") {
 		t.Errorf("unknown label: code %d, %s", code, errb.String())
 	}
 	errb.Reset()
 	if code := run([]string{"predict", "../../testdata/ring3.toml", "--edge", "+,nope"}, &out, &errb); code != 2 {
-		t.Errorf("bad --labels: code %d", code)
+		t.Errorf("bad --edge: code %d", code)
+	}
+	if code := run([]string{"predict", bad, "../../testdata/ring3.toml", "--data", bad}, &out, &errb); code != 2 {
+		t.Errorf("records twice: code %d", code)
 	}
 	o := filepath.Join(dir, "p.txt")
 	if code := run([]string{"predict", "../../testdata/ring3.toml", "-o", o}, &out, &errb); code != 0 {
@@ -177,16 +157,14 @@ func TestPredictBoundsOnlyWhenValid(t *testing.T) {
 	uneq := filepath.Join(dir, "uneq.toml")
 	os.WriteFile(uneq, append(src, []byte("\n[label.out]\ndetect = 0.5\n")...), 0o644)
 	for _, args := range [][]string{{uneq}, {"../../testdata/balanced.toml", "--dead-time", "0.3"}} {
-		r := predictJSON(t, append(args, "--windows", "5")...)
-		F := cell(t, r, "Predicted rates", "effective affinity", 1)
-		if sigma := cell(t, r, "Predicted rates", "entropy production", 1); sigma != 0 || math.Abs(F) < 1e-3 {
+		r := runJSON(t, append([]string{"predict"}, append(args, "--windows", "5")...)...)
+		F := r.num(t, "predicted", "F", "value")
+		if sigma := r.num(t, "predicted", "sigma", "value"); sigma != 0 || math.Abs(F) < 1e-3 {
 			t.Fatalf("%v: want sigma = 0 and F != 0 for this test to mean something; sigma %g F %g", args, sigma, F)
 		}
-		for _, tb := range r.Tables {
-			for _, row := range tb.Rows {
-				if strings.Contains(row[0], "lower bound") {
-					t.Errorf("%v: %q shown although it is not a bound here", args, row[0])
-				}
+		for _, key := range []string{"FJ", "TUR"} {
+			if _, ok := r.table(t, "predicted").row(key); ok {
+				t.Errorf("%v: %s shown although it is not a bound here", args, key)
 			}
 		}
 		found := false
@@ -198,24 +176,21 @@ func TestPredictBoundsOnlyWhenValid(t *testing.T) {
 		}
 	}
 	// Equal detection keeps the bound, and the stamp records the options.
-	r := predictJSON(t, "../../testdata/ring3.toml", "--windows", "5", "--dead-time", "0")
-	if _, ok := findRow(r, "lower bound F*J"); !ok {
+	r := runJSON(t, "predict", "../../testdata/ring3.toml", "--windows", "5", "--dead-time", "0")
+	if _, ok := r.table(t, "predicted").row("FJ"); !ok {
 		t.Error("bound missing for a valid instrument")
 	}
-	if !strings.Contains(r.Command, "--dead-time 0") {
-		t.Errorf("stamp %q does not record the options", r.Command)
+	if !strings.Contains(strings.Join(r.Stamp.Args, " "), "--dead-time 0") {
+		t.Errorf("stamp %q does not record the options", r.Stamp.Args)
 	}
-}
-
-func findRow(r report, key string) ([]string, bool) {
-	for _, tb := range r.Tables {
-		for _, row := range tb.Rows {
-			if strings.HasPrefix(row[0], key) {
-				return row, true
-			}
+	// At detailed balance with a symmetric instrument J, F and the bounds
+	// are exactly 0.
+	b := runJSON(t, "predict", "../../testdata/balanced.toml", "--windows", "5")
+	for _, key := range []string{"J", "F", "sigma", "FJ", "TUR"} {
+		if c := b.cell(t, "predicted", key, "value"); c.Kind != "zero" {
+			t.Errorf("balanced %s: %+v, want an exact zero", key, c)
 		}
 	}
-	return nil, false
 }
 
 // TestUsageErrorsSayWhy: a bad flag or value is reported on stderr with
@@ -231,17 +206,18 @@ func TestUsageErrorsSayWhy(t *testing.T) {
 		{[]string{"describe", "../../testdata/ring3.toml", "--bogus"}, "edgewise describe: unknown flag: --bogus"},
 		{[]string{"simulate", "../../testdata/ring3.toml", "--events", "abc"}, "edgewise simulate: invalid argument"},
 		{[]string{"simulate", "../../testdata/ring3.toml", "--events", "0"}, "--events and --records must be at least 1"},
+		{[]string{"simulate", "../../testdata/ring3.toml", "--time-unit", "1/ms"}, "--time-unit"},
 		{[]string{"predict", "../../testdata/ring3.toml", "--windows", "100000"}, "want 2 to 2000 events"},
 		{[]string{"predict", "../../testdata/ring3.toml", "--dead-time", "-1"}, "dead time -1"},
 		{[]string{"predict", nonrev, "--edge", "+,-"}, "do not sit on reversed transitions"},
 	}
 	for _, c := range cases {
 		var out, errb bytes.Buffer
-		if code := run(c.args, &out, &errb); code != 2 || !strings.Contains(errb.String(), c.want) {
+		if code := run(c.args, &out, &errb); code != 2 || !strings.Contains(errb.String(), c.want) || !strings.HasPrefix(errb.String(), "edgewise "+c.args[0]+": ") {
 			t.Errorf("%v: code %d, stderr %q; want 2 and %q", c.args, code, errb.String(), c.want)
 		}
 	}
-	// Without --labels, labels that are not one edge give no current
+	// Without --edge, labels that are not one edge give no current
 	// table, but the rest of the prediction is still made.
 	var out, errb bytes.Buffer
 	if code := run([]string{"predict", nonrev}, &out, &errb); code != 0 || !strings.Contains(out.String(), "no pair of labels forms one visible edge") {
@@ -250,7 +226,8 @@ func TestUsageErrorsSayWhy(t *testing.T) {
 }
 
 // TestPredictFrames: records with frame-limited timestamps are possible
-// under the model only when predict is told the frame length.
+// under the model only when predict knows the frame length; it is read
+// back from the records' stamp, and said so.
 func TestPredictFrames(t *testing.T) {
 	dir := t.TempDir()
 	fr := filepath.Join(dir, "fr.csv")
@@ -258,8 +235,19 @@ func TestPredictFrames(t *testing.T) {
 	if code := run([]string{"simulate", "../../testdata/ring3.toml", "-n", "2000", "--frame", "0.5", "-o", fr}, &out, &errb); code != 0 {
 		t.Fatal(errb.String())
 	}
-	r := predictJSON(t, "../../testdata/ring3.toml", "--data", fr, "--frame", "0.5", "--windows", "5")
-	if ll := cell(t, r, "Log-likelihood", "ln L per gap", 1); !(ll < 0) {
+	r := runJSON(t, "predict", fr, "../../testdata/ring3.toml", "--windows", "5")
+	if ll := r.num(t, "loglik", "lnL_per_gap", "value"); !(ll < 0) {
 		t.Errorf("framed ln L per gap %g: a probability per gap must be below 1", ll)
+	}
+	given := runJSON(t, "predict", fr, "../../testdata/ring3.toml", "--windows", "5", "--frame", "0.5")
+	if a, b := r.num(t, "loglik", "lnL", "value"), given.num(t, "loglik", "lnL", "value"); a != b {
+		t.Errorf("frame from the stamp: ln L %v, given: %v", a, b)
+	}
+	found := false
+	for _, n := range r.Notes {
+		found = found || strings.Contains(n, "frame length 0.5 read from the records' stamp")
+	}
+	if !found {
+		t.Errorf("no note on the frame: %v", r.Notes)
 	}
 }

@@ -2,13 +2,13 @@ package main
 
 import (
 	"bufio"
-	"errors"
 	"fmt"
 	"io"
-	"os"
 	"path/filepath"
 	"strconv"
+	"strings"
 
+	"edgewise/cmd/edgewise/internal/output"
 	"edgewise/models"
 )
 
@@ -22,6 +22,12 @@ recorded event are lost, as on an instrument that is blind after each
 detection. With --frame, each time is the start of the camera frame the
 event fell in. The same --seed gives byte-identical output.
 
+The first line is a comment, the stamp: the spec and its sha256, the
+seed, the instrument (dead_time, frame), the time unit (--time-unit or the
+spec's time_unit) and the visible edge in the spec's direction. inspect,
+fluct and predict read the instrument, the time unit and the edge back
+from it when not given, and say so.
+
 Example:
   edgewise simulate testdata/ring3.toml --events 5000 --records 4 --seed 1 -o demo.csv
 
@@ -29,50 +35,66 @@ Options:
 `
 
 func cmdSimulate(args []string, stdout, stderr io.Writer) int {
-	fs := newFlags("simulate", simulateHelp, args, stdout, stderr)
-	events := fs.IntP("events", "n", 1000, "visible events per record")
-	records := fs.IntP("records", "r", 1, "number of records")
-	seed := fs.Uint64P("seed", "s", 1, "random seed")
-	out := fs.StringP("output", "o", "-", "output file (- for standard output)")
-	force := fs.Bool("force", false, "overwrite an existing output file")
-	dead := fs.Float64("dead-time", 0, "instrument dead time after each recorded event (time units)")
-	frame := fs.Float64("frame", 0, "frame length: stamp each event with the start of its frame (time units; 0 = exact times)")
-	if code := parseFlags(fs, args); code >= 0 {
+	c := newCommand("simulate", simulateHelp, args, stdout, stderr)
+	events := c.fs.IntP("events", "n", 1000, "visible events per record")
+	records := c.fs.IntP("records", "r", 1, "number of records")
+	seed := c.fs.Uint64P("seed", "s", 1, "random seed")
+	dead := c.fs.Float64("dead-time", 0, "instrument dead time after each recorded event (time units)")
+	frame := c.fs.Float64("frame", 0, "frame length: stamp each event with the start of its frame (time units; 0 = exact times)")
+	c.outputFlags(false)
+	c.timeUnitFlag()
+	if code := c.parse(); code >= 0 {
 		return code
 	}
-	if fs.NArg() != 1 {
-		fs.Usage()
-		return 2
+	if c.fs.NArg() != 1 {
+		return c.usage("want one model spec, got %d arguments", c.fs.NArg())
 	}
 	if *events < 1 || *records < 1 {
-		return usageError(stderr, "simulate", "--events and --records must be at least 1")
+		return c.usage("--events and --records must be at least 1")
 	}
-	if err := checkOutput(*out, *force); err != nil {
-		fmt.Fprintf(stderr, "edgewise: %v\n", err)
-		return 1
+	if err := checkTimeUnit(*c.timeUnit); err != nil {
+		return c.usage("%v", err)
 	}
-	path := fs.Arg(0)
-	src, _, net, err := loadModel(path)
+	files := output.NewFiles(stdout, *c.force)
+	defer files.Close()
+	if err := files.Claim("-o", *c.out); err != nil {
+		return c.fail(1, err)
+	}
+	path := c.fs.Arg(0)
+	src, m, net, err := loadModel(path)
 	if err != nil {
-		fmt.Fprintf(stderr, "edgewise: %v\n", err)
-		return 1
+		return c.fail(1, err)
 	}
 	sim, err := models.NewSimulator(net, *seed)
 	if err != nil {
-		fmt.Fprintf(stderr, "edgewise: %v\n", err)
-		return 1
+		return c.fail(1, err)
 	}
 	if err := sim.SetDeadTime(*dead); err != nil {
-		fmt.Fprintf(stderr, "edgewise: --dead-time: %v\n", err)
-		return 2
+		return c.usage("--dead-time: %v", err)
 	}
 	if err := sim.SetFrame(*frame); err != nil {
-		fmt.Fprintf(stderr, "edgewise: --frame: %v\n", err)
-		return 2
+		return c.usage("--frame: %v", err)
+	}
+	unit, _ := c.resolveTimeUnit(m.TimeUnit, "")
+	stamp := []string{
+		fmt.Sprintf("edgewise %s simulate", version),
+		fmt.Sprintf("spec %s sha256 %s", stampWord(filepath.Base(path)), checksum(src)),
+		fmt.Sprintf("seed %d", *seed), fmt.Sprintf("events %d", *events), fmt.Sprintf("records %d", *records),
+		"dead_time " + strconv.FormatFloat(*dead, 'g', -1, 64), "frame " + strconv.FormatFloat(*frame, 'g', -1, 64),
+	}
+	if unit != "" {
+		stamp = append(stamp, "time_unit "+string(unit))
+	}
+	if f, b, ok := specEdge(m); ok && stampWord(f) == f && stampWord(b) == b && !strings.Contains(f+b, ",") {
+		stamp = append(stamp, "edge "+f+","+b)
+	}
+	var pb *bar
+	if total := int64(*events) * int64(*records); total > 2_000_000 {
+		pb = c.progress(total, "simulating", false)
 	}
 	gen := func(w io.Writer) error {
 		bw := bufio.NewWriterSize(w, 1<<16)
-		fmt.Fprintf(bw, "# edgewise %s simulate %s sha256 %s seed %d events %d records %d dead-time %g frame %g\n", version, filepath.Base(path), checksum(src)[:12], *seed, *events, *records, *dead, *frame)
+		fmt.Fprintf(bw, "# %s\n", strings.Join(stamp, "; "))
 		fmt.Fprintln(bw, "record,time,label")
 		buf := make([]models.Event, 0, 4096)
 		line := make([]byte, 0, 64)
@@ -89,67 +111,72 @@ func cmdSimulate(args []string, stdout, stderr io.Writer) int {
 					line = append(line, ',')
 					line = append(line, net.Labels[e.Label].Name...)
 					line = append(line, '\n')
-					bw.Write(line)
+					if _, err := bw.Write(line); err != nil {
+						return err
+					}
 				}
+				pb.add(n)
 			}
 		}
 		return bw.Flush()
 	}
-	if err := emit(*out, *force, stdout, gen); err != nil {
-		fmt.Fprintf(stderr, "edgewise: %v\n", err)
-		return 1
+	err = files.Write(*c.out, gen)
+	pb.finish()
+	if err != nil {
+		return c.fail(1, err)
 	}
 	return 0
 }
 
-// writeAtomic writes a file through a temporary file in the same folder and
-// a rename, so a reader never sees a partial file; it refuses to replace an
-// existing file unless force is set.
-func writeAtomic(path string, force bool, gen func(io.Writer) error) error {
-	if err := checkOutput(path, force); err != nil {
-		return err
-	}
-	tmp, err := os.CreateTemp(filepath.Dir(path), "."+filepath.Base(path)+".tmp*")
-	if err != nil {
-		return fmt.Errorf("cannot write %s: %w", path, errors.Unwrap(err))
-	}
-	defer os.Remove(tmp.Name())
-	if err := gen(tmp); err != nil {
-		tmp.Close()
-		return err
-	}
-	// CreateTemp makes the file owner-only; an output is for sharing.
-	if err := tmp.Chmod(0o644); err != nil {
-		tmp.Close()
-		return err
-	}
-	if err := tmp.Sync(); err != nil {
-		tmp.Close()
-		return fmt.Errorf("writing %s: %w", path, err)
-	}
-	if err := tmp.Close(); err != nil {
-		return err
-	}
-	return os.Rename(tmp.Name(), path)
+// stampWord replaces spaces and semicolons, which separate the stamp's
+// entries, by underscores.
+func stampWord(s string) string {
+	return strings.Map(func(r rune) rune {
+		if r == ' ' || r == ';' || r == '\t' {
+			return '_'
+		}
+		return r
+	}, s)
 }
 
-// emit writes gen's output to standard output when path is "-", else to
-// the file path through writeAtomic.
-func emit(path string, force bool, stdout io.Writer, gen func(io.Writer) error) error {
-	if path == "-" {
-		return gen(stdout)
+// specEdge returns the visible edge of a spec in its own direction: + and
+// - when the spec has them on exactly reversed transitions, else the two
+// labels of the first edge (in the spec's order) whose directions carry
+// labels found nowhere else, forward being the label of direction 0 (from
+// between[0] to between[1]).
+func specEdge(m *models.Model) (fwd, bwd string, ok bool) {
+	uses := map[string][][2]string{} // label -> transitions (from, to)
+	for _, e := range m.Edges {
+		for d := 0; d < 2; d++ {
+			if e.Labels[d] != "" {
+				uses[e.Labels[d]] = append(uses[e.Labels[d]], [2]string{e.Between[d], e.Between[1-d]})
+			}
+		}
 	}
-	return writeAtomic(path, force, gen)
-}
-
-// checkOutput fails when path exists and force is not set, so that a
-// command can refuse before doing its work. "-" (standard output) is fine.
-func checkOutput(path string, force bool) error {
-	if path == "-" || force {
-		return nil
+	reversed := func(a, b string) bool {
+		ua, ub := uses[a], uses[b]
+		if len(ua) == 0 || len(ua) != len(ub) {
+			return false
+		}
+		for _, t := range ua {
+			found := false
+			for _, s := range ub {
+				found = found || s == [2]string{t[1], t[0]}
+			}
+			if !found {
+				return false
+			}
+		}
+		return true
 	}
-	if _, err := os.Stat(path); err == nil {
-		return fmt.Errorf("%s exists; use --force to overwrite", path)
+	if reversed("+", "-") {
+		return "+", "-", true
 	}
-	return nil
+	for _, e := range m.Edges {
+		a, b := e.Labels[0], e.Labels[1]
+		if a != "" && b != "" && a != b && reversed(a, b) {
+			return a, b, true
+		}
+	}
+	return "", "", false
 }
