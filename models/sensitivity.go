@@ -1,0 +1,332 @@
+package models
+
+import (
+	"errors"
+	"fmt"
+	"math"
+
+	"gonum.org/v1/gonum/mat"
+)
+
+// Sensitivities: exact first derivatives of a network's derived quantities
+// with respect to its log-rates theta_t = ln w_t (one column per directed
+// transition, index 2*e + d as in Jacobian.LogRate) and its detection
+// probabilities p_l (one column per label), for the delta method and for
+// gradients of constrained fits.
+//
+// Stationary law. Write dL_t = dL/d theta_t = w_t (e_a e_b^T - e_a e_a^T)
+// for the transition t: a -> b. Differentiating pi L = 0, pi 1 = 1 gives
+// dpi L = -pi dL_t and dpi 1 = 0. For any q > 0 the matrix
+// B = q 1 pi - L is invertible (its inverse Z = B^{-1} satisfies Z 1 = 1/q
+// and is a shifted group inverse of -L), and dpi B = (dpi 1) q pi - dpi L
+// = pi dL_t, so
+//
+//	d pi / d theta_t = pi dL_t Z = pi_a w_t (Z_b - Z_a),
+//
+// with Z_i the i-th row of Z: one LU factorisation of B for all columns.
+// q = max_i |L_ii| keeps B balanced.
+//
+// Currents and traffic of edge e = (a, b) with rates w+ = w(a->b), w- =
+// w(b->a): J_e = pi_a w+ - pi_b w-, T_e = pi_a w+ + pi_b w- (1/time), and
+//
+//	dJ_e/d theta_t = (dpi_a/d theta_t) w+ - (dpi_b/d theta_t) w- + [t = e+] pi_a w+ - [t = e-] pi_b w-.
+//
+// Entropy production sigma = sum_e J_e (theta_e+ - theta_e-) in k_B per
+// time (Schnakenberg, Rev. Mod. Phys. 48, 571 (1976), eq. 7.6):
+//
+//	d sigma/d theta_t = sum_e (dJ_e/d theta_t) (theta_e+ - theta_e-) + J_e ([t = e+] - [t = e-]).
+//
+// Cycle affinities are linear in theta with constant coefficients +-1
+// (Network.Affinity), so their rows are exact constants.
+//
+// A quantity that is infinite (sigma or an affinity through a one-way edge)
+// has a row of NaN: it has no derivative.
+
+// QuantityKind names the kind of a derived quantity.
+type QuantityKind string
+
+// Kinds of the network-level quantities. Package likelihood adds the
+// quantities seen through an instrument.
+const (
+	KindStationary QuantityKind = "pi"       // stationary probability of state Args[0]
+	KindCurrent    QuantityKind = "current"  // net current of edge Args[0], From->To
+	KindTraffic    QuantityKind = "traffic"  // traffic (activity) of edge Args[0]: both directions' flux
+	KindEntropy    QuantityKind = "sigma"    // entropy production rate
+	KindAffinity   QuantityKind = "affinity" // affinity of basis cycle Args[0] (Network.CycleBasis)
+)
+
+// Quantity identifies one row of a Sensitivity.
+type Quantity struct {
+	Kind QuantityKind
+	Args []int  // the state, edge, cycle or label indices the quantity refers to
+	Name string // unique within a Sensitivity, e.g. "pi[A]", "J[0:A-B]", "sigma"
+	Unit string // "1", "1/time", "k_B/time", "k_BT" or "time"
+}
+
+// Sensitivity is a Jacobian of derived quantities with named rows: row q
+// holds the value of quantity q and its derivatives with respect to every
+// log-rate and every detection probability of one Network.
+type Sensitivity struct {
+	Rows  []Quantity
+	Value []float64 // Value[q] in Rows[q].Unit
+	// LogRate[q][2*e+d] = d Value[q] / d ln w(edge e, direction d); the
+	// column of an absent one-way direction is 0.
+	LogRate [][]float64
+	// Detect[q][l] = d Value[q] / d p_l, p_l the detection probability of
+	// label l.
+	Detect [][]float64
+}
+
+// Len returns the number of rows.
+func (s *Sensitivity) Len() int { return len(s.Rows) }
+
+// Find returns the index of the row with the given name, or -1.
+func (s *Sensitivity) Find(name string) int {
+	for i, r := range s.Rows {
+		if r.Name == name {
+			return i
+		}
+	}
+	return -1
+}
+
+// Append adds the rows of o, which must have the same columns, to s.
+func (s *Sensitivity) Append(o *Sensitivity) error {
+	if len(s.Rows) > 0 && len(o.Rows) > 0 && (len(s.LogRate[0]) != len(o.LogRate[0]) || len(s.Detect[0]) != len(o.Detect[0])) {
+		return fmt.Errorf("sensitivity: cannot append rows with %d+%d columns to rows with %d+%d", len(o.LogRate[0]), len(o.Detect[0]), len(s.LogRate[0]), len(s.Detect[0]))
+	}
+	s.Rows = append(s.Rows, o.Rows...)
+	s.Value = append(s.Value, o.Value...)
+	s.LogRate = append(s.LogRate, o.LogRate...)
+	s.Detect = append(s.Detect, o.Detect...)
+	return nil
+}
+
+// AddRow appends one row (the slices are kept, not copied).
+func (s *Sensitivity) AddRow(q Quantity, value float64, logRate, detect []float64) {
+	s.Rows = append(s.Rows, q)
+	s.Value = append(s.Value, value)
+	s.LogRate = append(s.LogRate, logRate)
+	s.Detect = append(s.Detect, detect)
+}
+
+// Params maps the sensitivities to a model's free parameters x (in the
+// order of Model.Free) through the model's Jacobian j, by the chain rule
+//
+//	d Value[q]/d x_k = sum_t LogRate[q][t] j.LogRate[t][k] / x_k + sum_l Detect[q][l] j.Detect[l][k].
+//
+// Multiply column k by x_k for derivatives with respect to ln x_k. A NaN
+// row stays NaN.
+func (s *Sensitivity) Params(j *Jacobian, x []float64) ([][]float64, error) {
+	if j == nil {
+		return nil, errors.New("sensitivity: nil model Jacobian")
+	}
+	nt, nl := len(j.LogRate), len(j.Detect)
+	for q := range s.Rows {
+		if len(s.LogRate[q]) != nt || len(s.Detect[q]) != nl {
+			return nil, fmt.Errorf("sensitivity: row %s has %d log-rate and %d detection columns; the model Jacobian has %d and %d", s.Rows[q].Name, len(s.LogRate[q]), len(s.Detect[q]), nt, nl)
+		}
+	}
+	for _, row := range append(append([][]float64(nil), j.LogRate...), j.Detect...) {
+		if len(row) != len(x) {
+			return nil, fmt.Errorf("sensitivity: model Jacobian has %d columns for %d free parameters", len(row), len(x))
+		}
+	}
+	out := make([][]float64, len(s.Rows))
+	for q := range out {
+		r := make([]float64, len(x))
+		for k := range x {
+			v := 0.0
+			for t, jr := range j.LogRate {
+				if jr[k] != 0 {
+					v += s.LogRate[q][t] * jr[k]
+				}
+			}
+			v /= x[k]
+			for l, jr := range j.Detect {
+				if jr[k] != 0 {
+					v += s.Detect[q][l] * jr[k]
+				}
+			}
+			r[k] = v
+		}
+		out[q] = r
+	}
+	return out, nil
+}
+
+// StationarySensitivity returns dpi[i][2*e+d] = d pi_i / d ln w(edge e,
+// direction d) at the stationary law pi of n (from Network.Stationary), by
+// one LU solve (see the formula above). Columns of absent one-way
+// directions are 0; every column sums to 0. It fails when the shifted
+// matrix q 1 pi - L is singular to working precision (condition number
+// above 1e14). Cost O(n^3 + n |E|).
+func (n *Network) StationarySensitivity(pi []float64) ([][]float64, error) {
+	k := len(n.States)
+	if len(pi) != k {
+		return nil, fmt.Errorf("stationary sensitivity: %d probabilities for %d states", len(pi), k)
+	}
+	g := n.Generator()
+	q := 0.0
+	for i := range g {
+		q = math.Max(q, -g[i][i])
+	}
+	b := mat.NewDense(k, k, nil)
+	for i := 0; i < k; i++ {
+		for j := 0; j < k; j++ {
+			b.Set(i, j, q*pi[j]-g[i][j])
+		}
+	}
+	var lu mat.LU
+	lu.Factorize(b)
+	if c := lu.Cond(); !(c < 1e14) {
+		return nil, fmt.Errorf("stationary sensitivity: q 1 pi - L is singular to working precision (condition number %.3g)", c)
+	}
+	id := mat.NewDense(k, k, nil)
+	for i := 0; i < k; i++ {
+		id.Set(i, i, 1)
+	}
+	var z mat.Dense
+	if err := lu.SolveTo(&z, false, id); err != nil {
+		var cond mat.Condition
+		if !errors.As(err, &cond) {
+			return nil, fmt.Errorf("stationary sensitivity: %w", err)
+		}
+	}
+	nc := 2 * len(n.Edges)
+	out := make([][]float64, k)
+	for i := range out {
+		out[i] = make([]float64, nc)
+	}
+	for _, t := range n.Transitions() {
+		c := 2*t.Edge + t.Dir
+		f := pi[t.From] * t.Rate
+		zb, za := z.RawRowView(t.To), z.RawRowView(t.From)
+		for i := 0; i < k; i++ {
+			out[i][c] = f * (zb[i] - za[i])
+		}
+	}
+	return out, nil
+}
+
+// EdgeName returns "e:From-To", the name of edge e in sensitivity rows
+// (the index keeps parallel edges apart).
+func (n *Network) EdgeName(e int) string {
+	ed := n.Edges[e]
+	return fmt.Sprintf("%d:%s-%s", e, n.States[ed.From], n.States[ed.To])
+}
+
+// Sensitivity returns the network-level quantities and their exact
+// derivatives with respect to the log-rates, in this row order:
+//
+//	pi[s]            stationary probability of each state s (1)
+//	J[e:a-b]         net current of each edge, a->b (1/time)
+//	traffic[e:a-b]   traffic pi_a w(a->b) + pi_b w(b->a) of each edge (1/time)
+//	sigma            entropy production rate (k_B/time)
+//	affinity[c:...]  affinity of each cycle of CycleBasis (k_BT)
+//
+// None of them depends on a detection probability: the Detect columns
+// (one per label) are 0. It fails when the network is invalid.
+func (n *Network) Sensitivity() (*Sensitivity, error) {
+	if err := n.Validate(); err != nil {
+		return nil, fmt.Errorf("sensitivity: %w", err)
+	}
+	pi, err := n.Stationary()
+	if err != nil {
+		return nil, fmt.Errorf("sensitivity: %w", err)
+	}
+	dpi, err := n.StationarySensitivity(pi)
+	if err != nil {
+		return nil, err
+	}
+	nc, nl := 2*len(n.Edges), len(n.Labels)
+	s := &Sensitivity{}
+	add := func(q Quantity, v float64, row []float64) { s.AddRow(q, v, row, make([]float64, nl)) }
+	for i, name := range n.States {
+		add(Quantity{Kind: KindStationary, Args: []int{i}, Name: "pi[" + name + "]", Unit: "1"}, pi[i], dpi[i])
+	}
+	cur := n.Currents(pi)
+	dcur := make([][]float64, len(n.Edges))
+	traffic := make([]float64, len(n.Edges))
+	dtraffic := make([][]float64, len(n.Edges))
+	for e, ed := range n.Edges {
+		dj := make([]float64, nc)
+		dt := make([]float64, nc)
+		for c := 0; c < nc; c++ {
+			fa, fb := dpi[ed.From][c]*ed.Rate[0], dpi[ed.To][c]*ed.Rate[1]
+			dj[c], dt[c] = fa-fb, fa+fb
+		}
+		fa, fb := pi[ed.From]*ed.Rate[0], pi[ed.To]*ed.Rate[1]
+		dj[2*e] += fa
+		dt[2*e] += fa
+		dj[2*e+1] -= fb
+		dt[2*e+1] += fb
+		dcur[e], dtraffic[e], traffic[e] = dj, dt, fa+fb
+		add(Quantity{Kind: KindCurrent, Args: []int{e}, Name: "J[" + n.EdgeName(e) + "]", Unit: "1/time"}, cur[e], dj)
+	}
+	for e := range n.Edges {
+		add(Quantity{Kind: KindTraffic, Args: []int{e}, Name: "traffic[" + n.EdgeName(e) + "]", Unit: "1/time"}, traffic[e], dtraffic[e])
+	}
+
+	sigma := n.EntropyProduction(pi)
+	ds := make([]float64, nc)
+	for e := range n.Edges {
+		a := n.EdgeAffinity(e)
+		if math.IsInf(a, 0) || math.IsNaN(a) {
+			for c := range ds {
+				ds[c] = math.NaN()
+			}
+			break
+		}
+		for c := 0; c < nc; c++ {
+			ds[c] += dcur[e][c] * a
+		}
+		ds[2*e] += cur[e]
+		ds[2*e+1] -= cur[e]
+	}
+	add(Quantity{Kind: KindEntropy, Name: "sigma", Unit: "k_B/time"}, sigma, ds)
+
+	for ci, cy := range n.CycleBasis() {
+		row := make([]float64, nc)
+		v := n.Affinity(cy)
+		for _, st := range cy.Steps {
+			sg := 1.0
+			if !st.Forward {
+				sg = -1
+			}
+			row[2*st.Edge] += sg
+			row[2*st.Edge+1] -= sg
+		}
+		if math.IsInf(v, 0) || math.IsNaN(v) {
+			for c := range row {
+				row[c] = math.NaN()
+			}
+		}
+		add(Quantity{Kind: KindAffinity, Args: []int{ci}, Name: fmt.Sprintf("affinity[%d:%s]", ci, cy.Names(n.States)), Unit: "k_BT"}, v, row)
+	}
+	return s, nil
+}
+
+// Sensitivity returns the network-level quantities of the model at the
+// free-parameter values x (Network.Sensitivity of m.Network(x)) and their
+// derivatives with respect to x: dx[q][k] = d Value[q] / d x_k (see
+// Sensitivity.Params).
+func (m *Model) Sensitivity(x []float64) (*Sensitivity, [][]float64, error) {
+	net, err := m.Network(x)
+	if err != nil {
+		return nil, nil, err
+	}
+	s, err := net.Sensitivity()
+	if err != nil {
+		return nil, nil, fmt.Errorf("model %s: %w", m.Name, err)
+	}
+	jac, err := m.Jacobian(x)
+	if err != nil {
+		return nil, nil, err
+	}
+	dx, err := s.Params(jac, x)
+	if err != nil {
+		return nil, nil, err
+	}
+	return s, dx, nil
+}
