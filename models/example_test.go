@@ -2,43 +2,22 @@ package models_test
 
 import (
 	"fmt"
-	"strings"
+	"os"
 
 	"edgewise/models"
 )
 
-// The entropy production of a three-state ring and how it responds to each
-// rate, first per log-rate of the network, then per free parameter of the
-// model (kac is fixed, so it has no column).
+// The entropy production of the three-state ring of testdata/ring3.toml and
+// how it responds to each rate, first per log-rate of the network, then per
+// free parameter of the model (kac is fixed, so it has no column).
 func ExampleModel_Sensitivity() {
-	spec := `
-name = "ring3"
-states = ["A", "B", "C"]
-[[edge]]
-between = ["A", "B"]
-rates = ["kab", "kba"]
-labels = ["+", "-"]
-[[edge]]
-between = ["B", "C"]
-rates = ["kbc", "kcb"]
-[[edge]]
-between = ["C", "A"]
-rates = ["kca", "kac"]
-[param.kab]
-value = 3.0
-[param.kba]
-value = 0.5
-[param.kbc]
-value = 2.0
-[param.kcb]
-value = 0.4
-[param.kca]
-value = 1.5
-[param.kac]
-value = 0.6
-fixed = true
-`
-	m, err := models.Parse(strings.NewReader(spec), "ring3.toml")
+	f, err := os.Open("../testdata/ring3.toml")
+	if err != nil {
+		fmt.Println(err)
+		return
+	}
+	defer f.Close()
+	m, err := models.Parse(f, "ring3.toml")
 	if err != nil {
 		fmt.Println(err)
 		return
