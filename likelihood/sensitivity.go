@@ -7,6 +7,7 @@ import (
 
 	"edgewise/models"
 
+	"gonum.org/v1/gonum/floats"
 	"gonum.org/v1/gonum/mat"
 )
 
@@ -167,6 +168,22 @@ func (p *Predictor) sensitivity(frechet func(dl []float64) ([]float64, error)) (
 		h[l] = obsTimesOnes(p.m[l])
 		phiM[l] = obsRowTimes(p.phi, p.m[l])
 	}
+	// dea = d(E A) acts on the vectors xs = (1, D_0 1, ..., D_{nl-1} 1)
+	// from the right and on phi from the left; with dA = A dD0 A a sum of
+	// outer products A e_i e_j^T A, each action costs O(n^2).
+	xs := [][]float64{obsOnes(n)}
+	for l := 0; l < nl; l++ {
+		xs = append(xs, obsTimesOnes(k.D[l]))
+	}
+	at := mat.DenseCopyOf(a.T()) // rows of at are the columns of A
+	phiE, phiEA := p.phi, obsRowTimes(p.phi, p.ea)
+	var ax [][]float64 // A x, with a dead time
+	if p.delta > 0 {
+		phiE = obsRowTimes(p.phi, p.e)
+		for _, x := range xs {
+			ax = append(ax, obsMatVec(a, x))
+		}
+	}
 
 	ne := len(k.net.Edges)
 	nc := 2 * ne
@@ -178,90 +195,101 @@ func (p *Predictor) sensitivity(frechet func(dl []float64) ([]float64, error)) (
 	dG := make([]float64, ncol)
 	dnum := make([][][]float64, ncol)
 	dgnum := make([][]float64, ncol)
-	dea := mat.NewDense(n, n, nil)
 	dl := mat.NewDense(n, n, nil)
-	dM := make([]*mat.Dense, nl)
-	for l := range dM {
-		dM[l] = mat.NewDense(n, n, nil)
+	rowDea := make([]float64, n) // phi dea
+	dax := make([][]float64, len(xs))
+	deax := make([][]float64, len(xs))
+	for i := range xs {
+		dax[i], deax[i] = make([]float64, n), make([]float64, n)
 	}
-	var tmp mat.Dense
+	phidM := make([][]float64, nl) // phi dM_l
+	dh := make([][]float64, nl)    // dM_l 1
+	dphiM := make([][]float64, nl) // d(phi M_l) = dphi M_l + phi dM_l
+	for l := 0; l < nl; l++ {
+		phidM[l], dh[l], dphiM[l] = make([]float64, n), make([]float64, n), make([]float64, n)
+	}
+	y := make([]float64, n)
 	for c := 0; c < ncol; c++ {
 		es := cols[c]
 		if len(es) == 0 {
 			continue // an absent one-way direction, or a label without edges
 		}
-		// dA = A dD0 A, accumulated into dea; dL for the dead time.
-		dea.Zero()
-		dl.Zero()
+		// dA = sum over the D0 entries of v A e_i e_j^T A: phi E dA and dA x.
+		clear(rowDea)
+		for i := range xs {
+			clear(dax[i])
+		}
 		for _, e := range es {
-			dl.Set(e.i, e.j, dl.At(e.i, e.j)+e.v)
 			if e.lab >= 0 {
 				continue
 			}
-			for i := 0; i < n; i++ {
-				ai := a.At(i, e.i) * e.v
-				if ai == 0 {
-					continue
-				}
-				for j := 0; j < n; j++ {
-					dea.Set(i, j, dea.At(i, j)+ai*a.At(e.j, j))
-				}
+			ai, aj := at.RawRowView(e.i), a.RawRowView(e.j)
+			floats.AddScaled(rowDea, e.v*floats.Dot(phiE, ai), aj)
+			for i, x := range xs {
+				floats.AddScaled(dax[i], e.v*floats.Dot(aj, x), ai)
 			}
 		}
 		if p.delta > 0 {
-			// dea = dE A + E dA.
-			tmp.Mul(p.e, dea)
-			dea.Copy(&tmp)
+			// dea = E dA + dE A.
+			for i := range xs {
+				copy(deax[i], obsMatVec(p.e, dax[i]))
+			}
 			if c < nc { // dL = 0 for a detection probability
+				dl.Zero()
+				for _, e := range es {
+					dl.Set(e.i, e.j, dl.At(e.i, e.j)+e.v)
+				}
 				de, err := frechet(dl.RawMatrix().Data)
 				if err != nil {
 					return nil, fmt.Errorf("likelihood: sensitivity: %w", err)
 				}
-				tmp.Mul(mat.NewDense(n, n, de), a)
-				dea.Add(dea, &tmp)
+				dem := mat.NewDense(n, n, de)
+				for i := range xs {
+					floats.Add(deax[i], obsMatVec(dem, ax[i]))
+				}
+				floats.Add(rowDea, obsRowTimes(obsRowTimes(p.phi, dem), a))
+			}
+		} else {
+			for i := range xs {
+				copy(deax[i], dax[i])
 			}
 		}
-		// dM_l = dea D_l + ea dD_l.
+		// phi dM_l = (phi dea) D_l + phi ea dD_l, dM_l 1 = dea D_l 1 + ea dD_l 1.
+		clear(y)
 		for l := 0; l < nl; l++ {
-			dM[l].Mul(dea, k.D[l])
+			copy(phidM[l], obsRowTimes(rowDea, k.D[l]))
+			copy(dh[l], deax[1+l])
 		}
 		for _, e := range es {
 			if e.lab < 0 {
 				continue
 			}
-			for i := 0; i < n; i++ {
-				dM[e.lab].Set(i, e.j, dM[e.lab].At(i, e.j)+p.ea.At(i, e.i)*e.v)
+			phidM[e.lab][e.j] += phiEA[e.i] * e.v
+			for r := 0; r < n; r++ {
+				dh[e.lab][r] += p.ea.At(r, e.i) * e.v
 			}
 		}
 		// dphi = phi dM Z.
-		y := make([]float64, n)
 		for l := 0; l < nl; l++ {
-			for j, x := range obsRowTimes(p.phi, dM[l]) {
-				y[j] += x
-			}
+			floats.Add(y, phidM[l])
 		}
 		dphi := obsRowTimes(y, &z)
-		du := obsTimesOnes(dea)
-		dh := make([][]float64, nl)
-		dphiM := make([][]float64, nl) // d(phi M_l) = dphi M_l + phi dM_l
+		du := deax[0]
 		dr[c] = make([]float64, nl)
 		for l := 0; l < nl; l++ {
-			dh[l] = obsTimesOnes(dM[l])
-			dphiM[l] = obsRowTimes(dphi, p.m[l])
-			for j, x := range obsRowTimes(p.phi, dM[l]) {
-				dphiM[l][j] += x
-			}
-			dr[c][l] = obsSum(dphiM[l])
+			copy(dphiM[l], obsRowTimes(dphi, p.m[l]))
+			floats.Add(dphiM[l], phidM[l])
+			dr[c][l] = floats.Sum(dphiM[l])
 		}
-		dG[c] = obsDot(dphi, u) + obsDot(p.phi, du)
+		dG[c] = floats.Dot(dphi, u) + floats.Dot(p.phi, du)
 		dnum[c] = make([][]float64, nl)
 		dgnum[c] = make([]float64, nl)
 		for l := 0; l < nl; l++ {
 			dnum[c][l] = make([]float64, nl)
 			for l2 := 0; l2 < nl; l2++ {
-				dnum[c][l][l2] = obsDot(dphiM[l], h[l2]) + obsDot(phiM[l], dh[l2])
+				dnum[c][l][l2] = floats.Dot(dphiM[l], h[l2]) + floats.Dot(phiM[l], dh[l2])
 			}
-			dgnum[c][l] = obsDot(dphiM[l], u) + obsDot(phiM[l], du)
+			dgnum[c][l] = floats.Dot(dphiM[l], u) + floats.Dot(phiM[l], du)
 		}
 	}
 
@@ -382,4 +410,18 @@ func ModelSensitivity(m *models.Model, x []float64, in Instrument) (*models.Sens
 		return nil, nil, fmt.Errorf("likelihood: %w", err)
 	}
 	return s, dx, nil
+}
+
+// obsMatVec returns the column vector a x.
+func obsMatVec(a mat.Matrix, x []float64) []float64 {
+	r, c := a.Dims()
+	out := make([]float64, r)
+	for i := 0; i < r; i++ {
+		s := 0.0
+		for j := 0; j < c; j++ {
+			s += a.At(i, j) * x[j]
+		}
+		out[i] = s
+	}
+	return out
 }

@@ -240,8 +240,20 @@ func (n *Network) Sensitivity() (*Sensitivity, error) {
 		return nil, err
 	}
 	nc, nl := 2*len(n.Edges), len(n.Labels)
-	s := &Sensitivity{}
-	add := func(q Quantity, v float64, row []float64) { s.AddRow(q, v, row, make([]float64, nl)) }
+	cycles := n.CycleBasis()
+	nrow := len(n.States) + 2*len(n.Edges) + 1 + len(cycles)
+	s := &Sensitivity{Rows: make([]Quantity, 0, nrow), Value: make([]float64, 0, nrow), LogRate: make([][]float64, 0, nrow), Detect: make([][]float64, 0, nrow)}
+	// One block for every row's columns.
+	slab, zero := make([]float64, (nrow-len(n.States))*nc), make([]float64, nrow*nl)
+	newRow := func() []float64 {
+		r := slab[:nc:nc]
+		slab = slab[nc:]
+		return r
+	}
+	add := func(q Quantity, v float64, row []float64) {
+		s.AddRow(q, v, row, zero[:nl:nl])
+		zero = zero[nl:]
+	}
 	for i, name := range n.States {
 		add(Quantity{Kind: KindStationary, Args: []int{i}, Name: "pi[" + name + "]", Unit: "1"}, pi[i], dpi[i])
 	}
@@ -250,8 +262,7 @@ func (n *Network) Sensitivity() (*Sensitivity, error) {
 	traffic := make([]float64, len(n.Edges))
 	dtraffic := make([][]float64, len(n.Edges))
 	for e, ed := range n.Edges {
-		dj := make([]float64, nc)
-		dt := make([]float64, nc)
+		dj, dt := newRow(), newRow()
 		for c := 0; c < nc; c++ {
 			fa, fb := dpi[ed.From][c]*ed.Rate[0], dpi[ed.To][c]*ed.Rate[1]
 			dj[c], dt[c] = fa-fb, fa+fb
@@ -269,7 +280,7 @@ func (n *Network) Sensitivity() (*Sensitivity, error) {
 	}
 
 	sigma := n.EntropyProduction(pi)
-	ds := make([]float64, nc)
+	ds := newRow()
 	for e := range n.Edges {
 		a := n.EdgeAffinity(e)
 		if math.IsInf(a, 0) || math.IsNaN(a) {
@@ -286,8 +297,8 @@ func (n *Network) Sensitivity() (*Sensitivity, error) {
 	}
 	add(Quantity{Kind: KindEntropy, Name: "sigma", Unit: "k_B/time"}, sigma, ds)
 
-	for ci, cy := range n.CycleBasis() {
-		row := make([]float64, nc)
+	for ci, cy := range cycles {
+		row := newRow()
 		v := n.Affinity(cy)
 		for _, st := range cy.Steps {
 			sg := 1.0
