@@ -169,7 +169,7 @@ func TestSensitivityStalling(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		ds, err := red.StationarySensitivity(sr)
+		_, ds, err := red.StationarySensitivity()
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -212,7 +212,7 @@ func TestSensitivityRatesFromPi(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		dpi, err := net.StationarySensitivity(pi)
+		_, dpi, err := net.StationarySensitivity()
 		if err != nil {
 			t.Fatal(err)
 		}

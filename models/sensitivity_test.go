@@ -6,6 +6,8 @@ import (
 	"math/rand/v2"
 	"strings"
 	"testing"
+
+	"gonum.org/v1/gonum/mat"
 )
 
 // Tests of Network.Sensitivity. Every row is checked against central
@@ -484,6 +486,92 @@ func BenchmarkSensitivity10(b *testing.B) {
 	for i := 0; i < b.N; i++ {
 		if _, err := net.Sensitivity(); err != nil {
 			b.Fatal(err)
+		}
+	}
+}
+
+// groupInverseRoute is d pi / d ln w by the linear solve: with
+// B = q 1 pi - L and Z = B^{-1}, d pi / d theta_t = pi_a w_t (Z_b - Z_a)
+// (derivation in sensitivity.go).
+func groupInverseRoute(t *testing.T, net *Network, pi []float64) [][]float64 {
+	t.Helper()
+	g := net.Generator()
+	k := len(g)
+	q := 0.0
+	for i := range g {
+		q = math.Max(q, -g[i][i])
+	}
+	b := mat.NewDense(k, k, nil)
+	for i := 0; i < k; i++ {
+		for j := 0; j < k; j++ {
+			b.Set(i, j, q*pi[j]-g[i][j])
+		}
+	}
+	var z mat.Dense
+	if err := z.Inverse(b); err != nil {
+		t.Fatal(err)
+	}
+	out := make([][]float64, k)
+	for i := range out {
+		out[i] = make([]float64, 2*len(net.Edges))
+	}
+	for _, tr := range net.Transitions() {
+		f := pi[tr.From] * tr.Rate
+		for i := 0; i < k; i++ {
+			out[i][2*tr.Edge+tr.Dir] = f * (z.At(tr.To, i) - z.At(tr.From, i))
+		}
+	}
+	return out
+}
+
+// TestStationarySensitivityRoutes: the differentiated reduction against
+// the group-inverse solve (rates over 2 decades: the solve's condition is
+// below 1e4, tolerance 1e-12 of pi_i), and, on stiff networks (rates over 6
+// to 20 decades), against the matrix-tree route under the complex step
+// with the tolerance 1e-13 of pi_i: the reduction keeps every entry to a
+// few ulps of pi_i (|d ln pi_i / d ln w| <= 1), where the solve loses up
+// to 1e-7. Its values equal Stationary's to 1e-14.
+func TestStationarySensitivityRoutes(t *testing.T) {
+	rng := rand.New(rand.NewPCG(9, 10))
+	for trial := 0; trial < 20; trial++ {
+		net := randomNetwork(rng, 3+trial%5, 2)
+		pi, dpi, err := net.StationarySensitivity()
+		if err != nil {
+			t.Fatal(err)
+		}
+		ref, _ := net.Stationary()
+		gi := groupInverseRoute(t, net, ref)
+		for i := range pi {
+			if math.Abs(pi[i]-ref[i]) > 1e-14*ref[i] {
+				t.Errorf("net %d: pi[%d] = %.17g, Stationary %.17g", trial, i, pi[i], ref[i])
+			}
+			for c := range dpi[i] {
+				if math.Abs(dpi[i][c]-gi[i][c]) > 1e-12*pi[i] {
+					t.Errorf("net %d: d pi_%d / d ln w[%d] = %.15g, group inverse %.15g", trial, i, c, dpi[i][c], gi[i][c])
+				}
+			}
+		}
+	}
+	for _, spread := range []float64{6, 10, 14, 20} {
+		net := randomNetwork(rng, 6, spread)
+		pi, dpi, err := net.StationarySensitivity()
+		if err != nil {
+			t.Fatal(err)
+		}
+		nc := 2 * len(net.Edges)
+		theta := make([]complex128, nc)
+		for e, ed := range net.Edges {
+			theta[2*e], theta[2*e+1] = complex(math.Log(ed.Rate[0]), 0), complex(math.Log(ed.Rate[1]), 0)
+		}
+		for c := 0; c < nc; c++ {
+			th := append([]complex128(nil), theta...)
+			th[c] += complex(0, 1e-30)
+			tp, _, _, _, _ := treeRoute(net, th)
+			for i := range pi {
+				if d := imag(tp[i]) / 1e-30; math.Abs(d-dpi[i][c]) > 1e-13*pi[i] {
+					t.Errorf("spread %g: d pi_%d / d ln w[%d] = %.15g, tree route %.15g (pi = %.3g)", spread, i, c, dpi[i][c], d, pi[i])
+				}
+			}
 		}
 	}
 }
