@@ -154,3 +154,69 @@ func divPow10(m uint64, k int) float64 {
 	// (10^-27 <= value < 2^64), so no subnormal or overflow case.
 	return math.Float64frombits(uint64(e2+52+1023)<<52 | mant&(1<<52-1))
 }
+
+// sameDecimal reports whether two plain decimal numbers (as parseDecimal
+// or strconv.ParseFloat accepted them) have the same value: "1.50" and
+// "15e-1" do, "100000000000000000001" and "1e20" do not, although they
+// round to the same float64.
+func sameDecimal(a, b []byte) bool {
+	na, da, ea := decimalKey(a)
+	nb, db, eb := decimalKey(b)
+	if len(da) == 0 || len(db) == 0 {
+		return len(da) == len(db) // zero equals zero, whatever the sign
+	}
+	return na == nb && ea == eb && string(da) == string(db)
+}
+
+// decimalKey returns the sign, the significant digits (no leading or
+// trailing zeros) and the exponent e of a decimal number, whose value is
+// 0.d1d2... 10^e. The exponent saturates far beyond the float64 range.
+func decimalKey(b []byte) (neg bool, digits []byte, exp int) {
+	i := 0
+	if i < len(b) && (b[i] == '+' || b[i] == '-') {
+		neg = b[i] == '-'
+		i++
+	}
+	point := -1 // digits before the point
+	for ; i < len(b); i++ {
+		c := b[i]
+		if c == '.' && point < 0 {
+			point = len(digits)
+			continue
+		}
+		if c < '0' || c > '9' {
+			break
+		}
+		digits = append(digits, c)
+	}
+	if point < 0 {
+		point = len(digits)
+	}
+	for len(digits) > 0 && digits[0] == '0' {
+		digits = digits[1:]
+		point--
+	}
+	for len(digits) > 0 && digits[len(digits)-1] == '0' {
+		digits = digits[:len(digits)-1]
+	}
+	exp = point
+	if i < len(b) && (b[i] == 'e' || b[i] == 'E') {
+		i++
+		eneg := false
+		if i < len(b) && (b[i] == '+' || b[i] == '-') {
+			eneg = b[i] == '-'
+			i++
+		}
+		e := 0
+		for ; i < len(b) && b[i] >= '0' && b[i] <= '9'; i++ {
+			if e < 1<<30 {
+				e = e*10 + int(b[i]-'0')
+			}
+		}
+		if eneg {
+			e = -e
+		}
+		exp += e
+	}
+	return neg, digits, exp
+}

@@ -1,6 +1,7 @@
 package infer
 
 import (
+	"errors"
 	"fmt"
 	"io"
 	"os"
@@ -93,7 +94,11 @@ type RecordReport struct {
 	// usually zero or meaningless, so a nonzero count needs attention
 	// (timestamps rounded to a clock tick, or doubled rows).
 	Duplicates int
-	End        bool // the record's end time is known (an end row, or a trace)
+	// ZeroGapLine is the line of the record's first event with the time
+	// of the previous event (0 when there is none) and ZeroGapEvent its
+	// 1-based index among the record's events.
+	ZeroGapLine, ZeroGapEvent int
+	End                       bool // the record's end time is known (an end row, or a trace)
 }
 
 // Duplicates returns the number of zero gaps over all records.
@@ -103,6 +108,40 @@ func (r *ReadReport) Duplicates() int {
 		n += rr.Duplicates
 	}
 	return n
+}
+
+// ZeroGaps describes the zero gaps of the file for a note: their number and
+// where the first is ("" when there is none). Zero gaps are kept in every
+// count (P(l'|l), F, J, the windows of the fluctuation test), left out of
+// the waiting-time divergences and flagged as ties by the shape test; an
+// exact-time likelihood refuses them (see likelihood.ZeroGapError).
+func (r *ReadReport) ZeroGaps() string {
+	n := r.Duplicates()
+	if n == 0 {
+		return ""
+	}
+	for _, rr := range r.Records {
+		if rr.ZeroGapLine > 0 {
+			return fmt.Sprintf("%d zero gaps (an event with the time of the previous one: the gap is below the times' resolution), the first at %s:%d (record %q, event %d)", n, r.File, rr.ZeroGapLine, rr.ID, rr.ZeroGapEvent)
+		}
+	}
+	return fmt.Sprintf("%d zero gaps", n)
+}
+
+// Locate turns an error of the likelihood about one event into a ReadError
+// at that event's line, when the report knows the line (a zero gap: the
+// first of its record); any other error is returned unchanged.
+func (r *ReadReport) Locate(err error) error {
+	var zg *likelihood.ZeroGapError
+	if r == nil || !errors.As(err, &zg) {
+		return err
+	}
+	for _, rr := range r.Records {
+		if rr.ID == zg.ID && rr.ZeroGapEvent == zg.Event {
+			return &ReadError{File: r.File, Line: rr.ZeroGapLine, Field: "time", Msg: fmt.Sprintf("zero gap in record %q (time %v, the same as the previous event): with exact timestamps the likelihood cannot use it; the gaps are finer than the times' resolution, so give that resolution as the frame length (--frame)", zg.ID, zg.Time)}
+		}
+	}
+	return err
 }
 
 // ReadFile opens path and reads it with ReadRecords.

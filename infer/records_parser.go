@@ -64,6 +64,7 @@ type parser struct {
 	state    string
 	stateSet bool
 	lastT    float64 // time of the last row (trace) or event
+	lastText []byte  // the time field of the last row
 	haveT    bool
 }
 

@@ -212,9 +212,21 @@ func (p *parser) row() error {
 			return p.errAt(p.col(p.colTime), "time", "%q underflows to 0", tf)
 		}
 	}
-	if p.haveT && t < p.lastT {
-		return p.errAt(p.col(p.colTime), "time", "%v is earlier than the previous time %v (line %d) in record %q: times must not decrease within a record", t, p.lastT, p.lastLine, p.curID)
+	if msg := checkTime(t); msg != "" {
+		return p.errAt(p.col(p.colTime), "time", "%q %s", tf, msg)
 	}
+	if p.haveT {
+		if t < p.lastT {
+			return p.errAt(p.col(p.colTime), "time", "%v is earlier than the previous time %v (line %d) in record %q: times must not decrease within a record", t, p.lastT, p.lastLine, p.curID)
+		}
+		if msg := checkGap(t - p.lastT); msg != "" {
+			return p.errAt(p.col(p.colTime), "time", "%q: the gap %v to the previous time (line %d) %s", tf, t-p.lastT, p.lastLine, msg)
+		}
+		if t == p.lastT && !sameDecimal(tf, p.lastText) {
+			return p.errAt(p.col(p.colTime), "time", "%q and %q (line %d) are different numbers but the same float64 (%v): the times carry more significant digits than a float64 holds (about 15); subtract an offset so that times start near 0", tf, p.lastText, p.lastLine, t)
+		}
+	}
+	p.lastText = append(p.lastText[:0], tf...)
 	p.curRep.Rows++
 	p.curRep.LastLine = p.lineNo
 	if p.rep.Trace {
@@ -260,6 +272,9 @@ func (p *parser) open(id string) {
 
 func (p *parser) event(t float64, l uint8) {
 	if n := len(p.times); n > p.start && p.times[n-1] == t {
+		if p.curRep.Duplicates == 0 {
+			p.curRep.ZeroGapLine, p.curRep.ZeroGapEvent = p.lineNo, p.curRep.Events+1
+		}
 		p.curRep.Duplicates++
 	}
 	if !p.hinted && len(p.times) == 4096 {

@@ -167,8 +167,8 @@ func cmdFluct(args []string, stdout, stderr io.Writer) int {
 		"the test assumes stationarity; a drifting record mixes windows with different laws",
 		"a slope consistent with F does not prove a model; post-selected windows follow F c exactly only when the labels form a first-order Markov chain",
 	)
-	if dup := rep.Duplicates(); dup > 0 {
-		r.Notes = append(r.Notes, fmt.Sprintf("%d events share the time of the previous event (rounded timestamps?): the windows count them, the waiting-time divergences leave those zero gaps out", dup))
+	if zg := rep.ZeroGaps(); zg != "" {
+		r.Notes = append(r.Notes, zg+": the windows count them, the waiting-time divergences leave them out")
 	}
 	var bres *infer.Bounds
 	if *bounds {

@@ -376,7 +376,7 @@ func inspectReport(d *likelihood.Data, rep *infer.ReadReport, c inspectConfig) (
 	// Notes.
 	r.Notes = append(r.Notes, s.Notes...)
 	if dups > 0 {
-		r.Notes = append(r.Notes, fmt.Sprintf("%d zero gaps (equal timestamps): exact likelihoods give them no meaningful density; check the clock resolution", dups))
+		r.Notes = append(r.Notes, rep.ZeroGaps()+": counted in every statistic of the label sequence, left out of the waiting-time divergences; an exact-time likelihood refuses them (declare the clock resolution as --frame)")
 	}
 	if len(rep.Ignored) > 0 {
 		r.Notes = append(r.Notes, "columns not used: "+strings.Join(rep.Ignored, ", "))

@@ -126,10 +126,11 @@ func cmdPredict(args []string, stdout, stderr io.Writer) int {
 	ropt.Known = k.Labels
 	r := &report{Tool: "edgewise " + version, Command: "predict " + strings.Join(args, " "), Input: path, Checksum: checksum(src)}
 	var d *likelihood.Data
+	var rep *infer.ReadReport
 	var markov *infer.TestResult
 	if *data != "" {
 		var sum string
-		d, _, sum, err = readInput(*data, os.Stdin, ropt)
+		d, rep, sum, err = readInput(*data, os.Stdin, ropt)
 		if err != nil {
 			fmt.Fprintf(stderr, "edgewise: %v\n", err)
 			return 1
@@ -145,7 +146,7 @@ func cmdPredict(args []string, stdout, stderr io.Writer) int {
 	}
 	if d != nil {
 		if err := againstData(r, net, pred, d, in, plus, minus, windows, *fixed, *rf.level); err != nil {
-			fmt.Fprintf(stderr, "edgewise: %v\n", err)
+			fmt.Fprintf(stderr, "edgewise: %v\n", rep.Locate(err))
 			return 1
 		}
 	}
