@@ -160,6 +160,9 @@ func EntropyBounds(d *likelihood.Data, opt BoundOptions) (*Bounds, error) {
 	if err != nil {
 		return nil, fmt.Errorf("entropy bounds: %w", err)
 	}
+	if err := CheckTimes(d); err != nil {
+		return nil, fmt.Errorf("entropy bounds: %w", err)
+	}
 	span, events := fluctObserved(d)
 	if !(span > 0) || events < 2 {
 		return nil, fmt.Errorf("entropy bounds: %d events over time %g: too few", events, span)

@@ -229,6 +229,9 @@ func FluctuationTest(d *likelihood.Data, ns []int, opt FluctOptions) ([]Fluctuat
 	if len(ns) == 0 {
 		return nil, errors.New("fluctuation test: no window length")
 	}
+	if err := CheckTimes(d); err != nil {
+		return nil, fmt.Errorf("fluctuation test: %w", err)
+	}
 	fhat := EffectiveAffinity(d, fw, bw, AffinityOptions{Level: opt.Level})
 	out := make([]Fluctuation, 0, len(ns))
 	for _, n := range ns {

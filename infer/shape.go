@@ -70,6 +70,9 @@ func ShapeTest(d *likelihood.Data, plus, minus uint8, opt ...ShapeOptions) (Shap
 	if int(plus) >= k || int(minus) >= k || plus == minus {
 		return ShapeResult{}, fmt.Errorf("shape test: bad label pair %d, %d for %d labels", plus, minus, k)
 	}
+	if err := CheckTimes(d); err != nil {
+		return ShapeResult{}, fmt.Errorf("shape test: %w", err)
+	}
 	x := repeatGaps(d.Records, plus)
 	y := repeatGaps(d.Records, minus)
 	r := ShapeResult{NPlus: len(x), NMinus: len(y), Method: "two-sample Kolmogorov-Smirnov on gaps divided by their pair's mean", PBoot: math.NaN(), ADPBoot: math.NaN()}

@@ -97,11 +97,14 @@ type GapStats struct {
 }
 
 // Summarize computes the statistics of d. It fails only on an empty data
-// set; quantities that cannot be computed are NaN and explained in Notes or
-// in the Estimate's Note.
+// set or data that CheckTimes refuses; quantities that cannot be computed
+// are NaN and explained in Notes or in the Estimate's Note.
 func Summarize(d *likelihood.Data, opt SummaryOptions) (*Summary, error) {
-	if d.Events() == 0 {
+	if d == nil || d.Events() == 0 {
 		return nil, fmt.Errorf("summary: no events")
+	}
+	if err := CheckTimes(d); err != nil {
+		return nil, fmt.Errorf("summary: %w", err)
 	}
 	if opt.Plus == "" {
 		opt.Plus = "+"

@@ -32,6 +32,9 @@ func recSimulate(tb testing.TB, net *models.Network, seed uint64, records, event
 		for left := events; left > 0; {
 			n := min(left, 4096)
 			buf, _ = sim.Visible(n, buf[:0])
+			if err := sim.Err(); err != nil {
+				tb.Fatal(err)
+			}
 			left -= n
 			for _, e := range buf {
 				rec.Time = append(rec.Time, e.Time)

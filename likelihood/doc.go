@@ -117,6 +117,18 @@
 // empty record, a time that is not finite or decreases, and a non-finite
 // result.
 //
+// Zero gaps. With exact timestamps (Frame = 0) an event at the same time
+// as the previous event of its record is refused (ZeroGapError, naming the
+// record and the event): a zero gap says only that the true gap was below
+// the resolution of the times (an instrument's clock tick, or the float64
+// spacing of a large time), and psi(0) is not the probability of that
+// observation (it is 0 for most pairs, which would make ln L = -inf, and
+// positive for others). Declaring the resolution as the frame length
+// (Instrument.Frame) integrates psi over the frame interval instead, which
+// is the likelihood of what was seen. The model-free statistics (package
+// infer) keep such events in every count and leave zero gaps out of the
+// gap-shape statistics, saying how many.
+//
 // # Matrix exponentials
 //
 // Propagator evaluates exp(A t) and int_lo^hi exp(A s) ds by one of three

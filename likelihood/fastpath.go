@@ -224,7 +224,7 @@ func (e *Evaluator) fastSegment(ws *work, d *Data, lm *[256]int16, sg segment) e
 			}
 			g := tm[k] - tm[k-1]
 			tau := g - delta
-			if !(tau >= 0) || tau > math.MaxFloat64 {
+			if !(tau >= 0) || tau > math.MaxFloat64 || g == 0 {
 				return gapError(rec, k, g, delta)
 			}
 			pr := prev*np1 + l

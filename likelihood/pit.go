@@ -337,7 +337,7 @@ func (e *Evaluator) pitFast(ws *work, tb *pitTables, d *Data, lm *[256]int16, sg
 			pr := prev*np1 + l
 			g := tm[k] - tm[k-1]
 			t := g - delta
-			if !(t >= 0) || t > math.MaxFloat64 {
+			if !(t >= 0) || t > math.MaxFloat64 || g == 0 {
 				return gapError(rec, k, g, delta)
 			}
 			den := tb.den[pr]

@@ -300,7 +300,7 @@ func (e *Evaluator) interval(g float64, dead bool) (lo, hi float64, ok bool) {
 	}
 	if e.frame == 0 {
 		t := g - dt
-		return t, t, t >= 0 && !math.IsInf(t, 0)
+		return t, t, t >= 0 && !math.IsInf(t, 0) && g != 0
 	}
 	if !(g >= 0) || math.IsInf(g, 0) {
 		return 0, 0, false
@@ -329,6 +329,18 @@ func (e *Evaluator) endTime(end, tn float64) float64 {
 	return end - tn - e.frame/2 - e.delta
 }
 
+// ZeroGapError is an event at the same time as the previous event of its
+// record while timestamps are exact (see the package doc, Zero gaps).
+type ZeroGapError struct {
+	ID    string  // record ID
+	Event int     // 1-based index of the event in its record
+	Time  float64 // the shared time
+}
+
+func (e *ZeroGapError) Error() string {
+	return fmt.Sprintf("likelihood: record %q event %d: zero gap (time %v, the same as the previous event): with exact timestamps a zero gap has no density; the gaps are finer than the times' resolution, so give that resolution as the frame length (or record shorter spans, since float64 resolution is relative to the time)", e.ID, e.Event, e.Time)
+}
+
 // gapError describes an impossible or invalid gap.
 func gapError(rec *Record, k int, g float64, delta float64) error {
 	t := rec.Time[k]
@@ -339,6 +351,8 @@ func gapError(rec *Record, k int, g float64, delta float64) error {
 		return fmt.Errorf("likelihood: record %q event %d: time %v is not finite", rec.ID, k, rec.Time[k-1])
 	case g < 0:
 		return fmt.Errorf("likelihood: record %q event %d: time %v is before the previous event (%v)", rec.ID, k+1, t, t-g)
+	case g == 0 && k > 0:
+		return &ZeroGapError{ID: rec.ID, Event: k + 1, Time: t}
 	}
 	return fmt.Errorf("likelihood: record %q event %d: gap %v is shorter than the dead time %v: impossible under the instrument", rec.ID, k+1, g, delta)
 }

@@ -141,7 +141,7 @@ func TestSimulatorDeadTime(t *testing.T) {
 		var want []Event
 		last := math.Inf(-1)
 		for _, e := range all {
-			if e.Time > last+delta {
+			if e.Time-last > delta {
 				want = append(want, e)
 				last = e.Time
 			}

@@ -176,8 +176,8 @@ func cmdFluct(args []string, stdout, stderr io.Writer) int {
 		"the test assumes stationarity; a drifting record mixes windows with different laws",
 		"a slope consistent with F does not prove a model; post-selected windows follow F c exactly only when the labels form a first-order Markov chain",
 	)
-	if dup := in.rep.Duplicates(); dup > 0 {
-		r.Note("%d events share the time of the previous event (rounded timestamps?): the windows count them, the waiting-time divergences leave those zero gaps out", dup)
+	if zg := in.rep.ZeroGaps(); zg != "" {
+		r.Note("%s: the windows count them, the waiting-time divergences leave them out", zg)
 	}
 	if *bounds {
 		stop := c.spin("bounds")

@@ -328,7 +328,7 @@ func inspectReport(d *likelihood.Data, rep *infer.ReadReport, c inspectConfig) (
 	// Notes.
 	r.Notes = append(r.Notes, s.Notes...)
 	if dups > 0 {
-		r.Note("%d zero gaps (equal timestamps): exact likelihoods give them no meaningful density; check the clock resolution", dups)
+		r.Note("%s: counted in every statistic of the label sequence, left out of the waiting-time divergences; an exact-time likelihood refuses them (declare the clock resolution as --frame)", rep.ZeroGaps())
 	}
 	if len(rep.Ignored) > 0 {
 		r.Note("columns not used: %s", strings.Join(rep.Ignored, ", "))

@@ -149,6 +149,7 @@ func cmdPredict(args []string, stdout, stderr io.Writer) int {
 		notes = append(notes, "--data is the old way to give the records: write edgewise predict RECORDS MODEL")
 	}
 	var d *likelihood.Data
+	var rep *infer.ReadReport
 	var markov *infer.TestResult
 	var stamp simStamp
 	if recPath != "" {
@@ -156,7 +157,7 @@ func cmdPredict(args []string, stdout, stderr io.Writer) int {
 		if err != nil {
 			return c.fail(1, err)
 		}
-		d, stamp = rin.d, rin.stamp
+		d, stamp, rep = rin.d, rin.stamp, rin.rep
 		inputs = append(inputs, rin.input())
 		mo := infer.MarkovOrderTest(d)
 		markov = &mo
@@ -188,7 +189,7 @@ func cmdPredict(args []string, stdout, stderr io.Writer) int {
 	}
 	if d != nil {
 		if err := againstData(r, net, pred, d, in, plus, minus, windows, *fixed, *rf.level, unit); err != nil {
-			return c.fail(1, err)
+			return c.fail(1, rep.Locate(err))
 		}
 	}
 	r.Note("predictions at the model's start values; they hold for data taken through the same detection process (detection probabilities, dead time)")

@@ -103,6 +103,9 @@ func cmdSimulate(args []string, stdout, stderr io.Writer) int {
 			for left := *events; left > 0; {
 				n := min(left, 4096)
 				buf, _ = sim.Visible(n, buf[:0])
+				if err := sim.Err(); err != nil {
+					return fmt.Errorf("record %d: %w", r, err)
+				}
 				left -= n
 				for _, e := range buf {
 					line = strconv.AppendInt(line[:0], int64(r), 10)
@@ -124,6 +127,9 @@ func cmdSimulate(args []string, stdout, stderr io.Writer) int {
 	pb.finish()
 	if err != nil {
 		return c.fail(1, err)
+	}
+	if n := sim.Ties(); n > 0 {
+		fmt.Fprintf(stderr, "edgewise: warning: %d of %d events have the time of the previous event: their gaps are below the float64 resolution of the times (about 2.2e-16 times the time); the label sequence is exact, but an exact-time likelihood refuses zero gaps. Use shorter records (more --records, fewer --events) or --frame\n", n, *events**records)
 	}
 	return 0
 }
