@@ -52,6 +52,9 @@ type Identifiability struct {
 	// Cov is the covariance of the working coordinates on the determined
 	// subspace: sum over non-flat eigenpairs of v v^T / lambda.
 	Cov *mat.SymDense
+	// FlatVectors are unit vectors spanning the flat subspace (working
+	// coordinates).
+	FlatVectors [][]float64
 }
 
 // analyseInformation classifies the eigen-directions of info and names the
@@ -76,7 +79,6 @@ func analyseInformation(info *mat.SymDense, names []string, kinds []models.Param
 	}
 	thr := math.Max(flatRelative*lmax, 1/(flatSE*flatSE))
 	proj := mat.NewSymDense(p, nil) // projector on the flat subspace
-	var flatVecs [][]float64
 	for k, l := range lam {
 		v := mat.Col(nil, k, &vec)
 		if l <= thr {
@@ -84,7 +86,7 @@ func analyseInformation(info *mat.SymDense, names []string, kinds []models.Param
 				id.NotMaximum = true
 			}
 			id.Flat++
-			flatVecs = append(flatVecs, v)
+			id.FlatVectors = append(id.FlatVectors, v)
 			for i := 0; i < p; i++ {
 				for j := i; j < p; j++ {
 					proj.SetSym(i, j, proj.At(i, j)+v[i]*v[j])
