@@ -197,8 +197,23 @@ for k, v in sorted(out.items()):
 // installed), give every number bit for bit as the library computed it.
 // Skipped without python3.
 func TestPythonRoundTrip(t *testing.T) {
-	py, err := exec.LookPath("python3")
-	if err != nil {
+	// Prefer an interpreter with pandas (Debian's python3-pandas goes with
+	// /usr/bin/python3, which need not be the python3 on PATH).
+	py := ""
+	for _, cand := range []string{"python3", "/usr/bin/python3"} {
+		p, err := exec.LookPath(cand)
+		if err != nil {
+			continue
+		}
+		if py == "" {
+			py = p
+		}
+		if exec.Command(p, "-c", "import pandas").Run() == nil {
+			py = p
+			break
+		}
+	}
+	if py == "" {
 		t.Skip("python3 not installed")
 	}
 	d, rep, err := infer.ReadFile("../../testdata/ring3-demo.csv", infer.ReadOptions{})
