@@ -118,7 +118,7 @@ func writeFigure(files *output.Files, path string, plots []*plot.Plot, widthMM f
 	cols := max(1, min(len(plots), int(widthMM/60)))
 	rows := (len(plots) + cols - 1) / cols
 	w := vg.Length(widthMM) * vg.Millimeter
-	panelH := math.Max(float64(w)/float64(cols)*0.78, float64(48*vg.Millimeter))
+	panelH := math.Min(math.Max(float64(w)/float64(cols)*0.72, float64(48*vg.Millimeter)), float64(80*vg.Millimeter))
 	h := vg.Length(panelH) * vg.Length(rows)
 	var c vg.CanvasWriterTo
 	switch format {
@@ -183,6 +183,13 @@ func fluctPanel(r infer.Fluctuation, showRaw, showPost bool) (*plot.Plot, error)
 	if r.FixedTime != nil {
 		series = append(series, fluctSeries{"fixed time", *r.FixedTime, figPalette[2], draw.SquareGlyph{}})
 	}
+	npts := 0
+	for _, s := range series {
+		npts += len(s.sym.Points)
+	}
+	if npts == 0 {
+		return p, emptyPanel(p, fmt.Sprintf("no c with windows of both signs at n = %d", r.N))
+	}
 	cmax := 1.0
 	for i, s := range series {
 		if len(s.sym.Points) == 0 {
@@ -228,7 +235,21 @@ func fluctPanel(r infer.Fluctuation, showRaw, showPost bool) (*plot.Plot, error)
 	// not cut at the frame, and put the legend where the lines are not.
 	p.X.Min, p.X.Max = 0, math.Max(p.X.Max, cmax+0.5)
 	p.Y.Min = math.Min(p.Y.Min, 0)
-	p.Legend.Left, p.Legend.Top = false, false
+	for _, slope := range []float64{r.F.Value, r.PostSelected.Slope.Value} {
+		if !math.IsNaN(slope) && !math.IsInf(slope, 0) {
+			p.Y.Max = math.Max(p.Y.Max, slope*p.X.Max)
+			p.Y.Min = math.Min(p.Y.Min, slope*p.X.Max)
+		}
+	}
+	// The lines rise from the origin, so the top-left corner is free
+	// (bottom-left for a negative slope).
+	p.Legend.Left, p.Legend.Top = true, !(r.F.Value < 0)
+	room := 0.07 * float64(len(series)+2) / (1 - 0.07*float64(len(series)+2)) // legend rows take about 7% of the height each
+	if p.Legend.Top {
+		p.Y.Max += room * (p.Y.Max - p.Y.Min)
+	} else {
+		p.Y.Min -= room * (p.Y.Max - p.Y.Min)
+	}
 	p.X.Tick.Marker = intTicks{parity: -1}
 	return p, nil
 }
@@ -276,10 +297,13 @@ func pnPanel(r infer.Fluctuation, post bool) (*plot.Plot, error) {
 	p.Add(bars, sc)
 	decade := math.Pow(10, math.Floor(math.Log10(lo)))
 	p.Y.Min, p.Y.Max = decade, 1
+	if !neg {
+		p.Y.Min = decade / 10 // an empty strip for the message
+	}
 	p.X.Tick.Marker = intTicks{parity: r.N % 2}
 	p.X.Min, p.X.Max = p.X.Min-0.7, p.X.Max+0.7
 	if !neg {
-		l, err := plotter.NewLabels(plotter.XYLabels{XYs: []plotter.XY{{X: p.X.Min + 0.5, Y: math.Sqrt(decade * math.Sqrt(decade))}}, Labels: []string{fmt.Sprintf("no windows with c < 0 at n = %d", r.N)}})
+		l, err := plotter.NewLabels(plotter.XYLabels{XYs: []plotter.XY{{X: p.X.Min + 0.3, Y: decade / 4}}, Labels: []string{fmt.Sprintf("no windows with c < 0 at n = %d", r.N)}})
 		if err != nil {
 			return nil, err
 		}
@@ -292,11 +316,16 @@ func pnPanel(r infer.Fluctuation, post bool) (*plot.Plot, error) {
 // emptyPanel writes msg in the middle of a panel with nothing else to show.
 func emptyPanel(p *plot.Plot, msg string) error {
 	p.X.Min, p.X.Max, p.Y.Min, p.Y.Max = 0, 1, 0.01, 1
-	l, err := plotter.NewLabels(plotter.XYLabels{XYs: []plotter.XY{{X: 0.1, Y: 0.1}}, Labels: []string{msg}})
+	l, err := plotter.NewLabels(plotter.XYLabels{XYs: []plotter.XY{{X: 0.05, Y: 0.5}}, Labels: []string{msg}})
 	if err != nil {
 		return err
 	}
+	l.TextStyle[0].Font.Size = vg.Points(7.5)
 	p.Add(l)
+	p.HideAxes()
+	p.Y.Scale = plot.LinearScale{}
+	p.X.Tick.Marker, p.Y.Tick.Marker = plot.ConstantTicks(nil), plot.ConstantTicks(nil)
+	p.X.Label.Text, p.Y.Label.Text = "", ""
 	return nil
 }
 

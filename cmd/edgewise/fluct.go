@@ -334,14 +334,14 @@ func (b boundFlags) fromStamp(s simStamp, c *infer.BoundConditions) string {
 // per window length, the slope against F and the linearity.
 func fluctTables(res []infer.Fluctuation, checks []infer.Check, both bool, level float64) []*output.Table {
 	main := output.NewTable("fluct", "Fluctuation test: slope of ln[P(c)/P(-c)] against c, set against F", "windows",
-		output.Col("n", "n", ""), output.Col("kind", "kind", ""), output.Col("windows", "how many", ""),
+		output.MachineCol("n", "n", ""), output.MachineCol("kind", "kind", ""), output.Col("windows", "how many", ""),
 		output.Col("c_in_fit", "c in fit", ""), output.Col("c_one_sided", "c one-sided", ""),
 		output.Col("slope", "slope", "k_BT"), output.Col("slope_interval", pct(level)+" interval", "k_BT"),
 		output.Col("F", "F", "k_BT"), output.Col("F_interval", "F "+pct(level), "k_BT"),
 		output.Col("slope_minus_F", "slope - F", "k_BT"), output.Col("se", "SE", "k_BT"), output.Col("z", "z", ""),
 		output.Col("p", "p", ""), output.Col("holm_p", "Holm p", ""), output.Col("linearity_p", "linearity p", ""), output.Col("reading", "reading", ""))
 	pts := output.NewTable("log_ratios", "Log-ratios per current c (exact "+pct(level)+" intervals)", "windows",
-		output.Col("n", "n", ""), output.Col("kind", "kind", ""), output.Col("c", "c", ""), output.Col("N_c", "N(c)", ""), output.Col("N_minus_c", "N(-c)", ""),
+		output.MachineCol("n", "n", ""), output.MachineCol("kind", "kind", ""), output.MachineCol("c", "c", ""), output.Col("N_c", "N(c)", ""), output.Col("N_minus_c", "N(-c)", ""),
 		output.Col("log_ratio", "ln[N(c)/N(-c)]", ""), output.Col("interval", "interval", ""))
 	for i, r := range res {
 		c, lin := &checks[2*i], &checks[2*i+1]

@@ -21,9 +21,10 @@ type jsonStamp struct {
 }
 
 type jsonColumn struct {
-	Key   string `json:"key"`
-	Label string `json:"label"`
-	Unit  string `json:"unit"`
+	Key         string `json:"key"`
+	Label       string `json:"label"`
+	Unit        string `json:"unit"`
+	MachineOnly bool   `json:"-"`
 }
 
 type jsonRow struct {

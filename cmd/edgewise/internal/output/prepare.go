@@ -72,7 +72,10 @@ func prepare(t *Table, maxText int) *prepTable {
 			p.cells[i][j] = pc
 		}
 	}
-	for j := range t.Columns {
+	for j, c := range t.Columns {
+		if c.MachineOnly {
+			continue
+		}
 		for _, r := range t.Rows {
 			if r.Cells[j].Kind != KindEmpty {
 				p.shown = append(p.shown, j)
@@ -81,8 +84,10 @@ func prepare(t *Table, maxText int) *prepTable {
 		}
 	}
 	if len(t.Rows) == 0 {
-		for j := range t.Columns {
-			p.shown = append(p.shown, j)
+		for j, c := range t.Columns {
+			if !c.MachineOnly {
+				p.shown = append(p.shown, j)
+			}
 		}
 	}
 	return p

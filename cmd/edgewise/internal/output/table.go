@@ -81,10 +81,19 @@ type Column struct {
 	Key   string
 	Label string
 	Unit  string
+	// MachineOnly columns repeat what the row label says for people (e.g.
+	// a window length already in "n = 5, all windows"): CSV and JSON carry
+	// them, the terminal, Markdown and LaTeX leave them out.
+	MachineOnly bool
 }
 
 // Col is a Column.
 func Col(key, label, unit string) Column { return Column{Key: key, Label: label, Unit: unit} }
+
+// MachineCol is a MachineOnly Column.
+func MachineCol(key, label, unit string) Column {
+	return Column{Key: key, Label: label, Unit: unit, MachineOnly: true}
+}
 
 // Row is one row of a table: a stable machine key, a human label and one
 // cell per column.
