@@ -150,10 +150,23 @@ func TestSensitivityInstrumentFiniteDifferences(t *testing.T) {
 
 // TestSensitivityStalling: F and its derivatives (log-rates and both
 // detection probabilities) against the stalling affinity route, on
-// single-edge networks without dead time. Tolerance 1e-11 of the row scale:
-// both routes are exact; the stationary solves keep ~1e-14.
+// single-edge networks without dead time. Tolerance 1e-11 of the row scale
+// for rates over 2 decades: both routes are exact, the stationary solves
+// keep ~1e-14. On stiff networks (rates over 6 and 10 decades) the
+// post-event chain's solve (I - M + 1 phi) loses digits with its condition
+// (2e-10 observed at 10 decades): tolerance 1e-8 there.
 func TestSensitivityStalling(t *testing.T) {
-	for ni, net := range sensCases()[:3] {
+	rng := rand.New(rand.NewPCG(3, 3))
+	nets := sensCases()[:3]
+	tols := []float64{1e-11, 1e-11, 1e-11}
+	for _, dec := range []float64{6, 10} {
+		for r := 0; r < 4; r++ {
+			nets = append(nets, coreRandomNet(rng, 6, 3, dec, 0.9))
+			tols = append(tols, 1e-8)
+		}
+	}
+	for ni, net := range nets {
+		tol := tols[ni]
 		s := sensOf(t, net, 0)
 		q := s.Find("F[+/-]")
 		if q < 0 {
@@ -175,7 +188,7 @@ func TestSensitivityStalling(t *testing.T) {
 		}
 		F := math.Log(pp*vis.Rate[0]*sr[a]) - math.Log(pm*vis.Rate[1]*sr[b])
 		sc := sensScale(s, q)
-		if math.Abs(F-s.Value[q]) > 1e-11*sc {
+		if math.Abs(F-s.Value[q]) > tol*sc {
 			t.Errorf("net %d: F = %.15g, stalling route %.15g", ni, s.Value[q], F)
 		}
 		dlog := func(c int) float64 { return ds[a][c]/sr[a] - ds[b][c]/sr[b] }
@@ -187,7 +200,7 @@ func TestSensitivityStalling(t *testing.T) {
 			case 1:
 				want--
 			}
-			if math.Abs(want-s.LogRate[q][c]) > 1e-11*sc {
+			if math.Abs(want-s.LogRate[q][c]) > tol*sc {
 				t.Errorf("net %d: dF/d ln w[%d] = %.15g, stalling route %.15g", ni, c, s.LogRate[q][c], want)
 			}
 		}
@@ -195,7 +208,7 @@ func TestSensitivityStalling(t *testing.T) {
 		// of the reduced rate (1-p+) w+; likewise for p- with signs flipped.
 		wantP := 1/pp - dlog(0)/(1-pp)
 		wantM := -1/pm - dlog(1)/(1-pm)
-		if math.Abs(wantP-s.Detect[q][0]) > 1e-11*sc || math.Abs(wantM-s.Detect[q][1]) > 1e-11*sc {
+		if math.Abs(wantP-s.Detect[q][0]) > tol*sc || math.Abs(wantM-s.Detect[q][1]) > tol*sc {
 			t.Errorf("net %d: dF/dp = %.15g, %.15g; stalling route %.15g, %.15g", ni, s.Detect[q][0], s.Detect[q][1], wantP, wantM)
 		}
 	}
