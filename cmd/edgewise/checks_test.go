@@ -85,7 +85,7 @@ func TestGolden(t *testing.T) {
 func TestJSONSchema(t *testing.T) {
 	c := jsonschema.NewCompiler()
 	schemas := map[string]*jsonschema.Schema{}
-	for _, cmd := range []string{"describe", "inspect", "fluct", "predict"} {
+	for _, cmd := range []string{"describe", "inspect", "fluct", "predict", "fit", "compare"} {
 		s, err := c.Compile(filepath.Join("..", "..", "docs", "schema", cmd+".json"))
 		if err != nil {
 			t.Fatalf("%s: %v", cmd, err)
@@ -106,6 +106,8 @@ func TestJSONSchema(t *testing.T) {
 		{"predict", "../../testdata/ring3.toml"},
 		{"predict", "../../testdata/ring3-demo.csv", "../../testdata/ring3.toml", "--windows", "5", "--fixed-time"},
 		{"predict", "../../testdata/shared-label.toml"},
+		{"fit", "../../testdata/ring3-demo.csv", "../../testdata/ring3.toml", "--starts", "2"},
+		{"compare", "../../testdata/ring3-demo.csv", "../../testdata/ring3.toml", "--chains", "2", "--starts", "2"},
 	} {
 		out := runOut(t, append(args, "--format", "json")...)
 		inst, err := jsonschema.UnmarshalJSON(bytes.NewReader(out))

@@ -360,7 +360,10 @@ func (plainLogTicks) Ticks(lo, hi float64) []plot.Tick {
 // as N_{ll'}(bin) / (N_{l.} bin width), so that its integral is P(l'|l)
 // (joint, not conditional on l'). Both axes are logarithmic; bins hold a
 // factor 10^(1/5) in t.
-func gapPanel(d *likelihood.Data, u output.TimeUnit) (*plot.Plot, error) {
+//
+// psi, when not nil, gives a model's psi_{a->b} at times t: it is drawn
+// as a dashed curve in the colour of the pair's points.
+func gapPanel(d *likelihood.Data, u output.TimeUnit, psi func(a, b string, t []float64) []float64) (*plot.Plot, error) {
 	k := len(d.Labels)
 	p := newFigPlot("joint density psi_{l->l'}(t) of the gap and the next label (integral P(l'|l))", "gap t ("+u.Time()+")", "psi_{l->l'}(t) ("+u.Rate()+")")
 	p.X.Scale, p.Y.Scale = plot.LogScale{}, plot.LogScale{}
@@ -425,6 +428,27 @@ func gapPanel(d *likelihood.Data, u output.TimeUnit) (*plot.Plot, error) {
 			pts.Color, pts.Shape, pts.Radius = c, shapes[si%len(shapes)], vg.Points(2)
 			p.Add(line, pts)
 			p.Legend.Add(fmt.Sprintf("%s \u2192 %s", d.Labels[a], d.Labels[b]), line, pts)
+			if psi != nil {
+				const nt = 80
+				ts := make([]float64, nt)
+				for i := range ts {
+					ts[i] = lo * math.Pow(hi/lo, float64(i)/float64(nt-1))
+				}
+				var cxy plotter.XYs
+				for i, v := range psi(d.Labels[a], d.Labels[b], ts) {
+					if v > 0 && !math.IsInf(v, 0) {
+						cxy = append(cxy, plotter.XY{X: ts[i], Y: v})
+					}
+				}
+				if len(cxy) > 1 {
+					cl, err := plotter.NewLine(cxy)
+					if err != nil {
+						return nil, err
+					}
+					cl.Color, cl.Width, cl.Dashes = c, vg.Points(1), []vg.Length{vg.Points(3), vg.Points(2)}
+					p.Add(cl)
+				}
+			}
 			si++
 		}
 	}

@@ -421,7 +421,7 @@ func writeFluctFigures(files *output.Files, ff figureFlags, d *likelihood.Data, 
 		}
 	}
 	if *ff.hist != "" {
-		p, err := gapPanel(d, u)
+		p, err := gapPanel(d, u, nil)
 		if err != nil {
 			return err
 		}

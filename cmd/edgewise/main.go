@@ -42,6 +42,10 @@ func run(args []string, stdout, stderr io.Writer) int {
 		return cmdFluct(args[1:], stdout, stderr)
 	case "predict":
 		return cmdPredict(args[1:], stdout, stderr)
+	case "fit":
+		return cmdFit(args[1:], stdout, stderr)
+	case "compare":
+		return cmdCompare(args[1:], stdout, stderr)
 	case "help", "-h", "--help":
 		if len(args) > 1 && args[0] == "help" {
 			if _, ok := commands[args[1]]; ok {
@@ -72,6 +76,8 @@ Commands:
   inspect   model-free statistics and checks of records: rates, P(l'|l), F, tests
   fluct     count-stopped fluctuation test and entropy production bounds from records
   predict   what a model predicts for data through an instrument, and how records compare
+  fit       maximum-likelihood fit of one hidden network to records, with intervals
+  compare   fit and rank candidate networks; rule out the inconsistent ones
   version   print the tool version
   help      show this help; "edgewise help CMD" is "edgewise CMD --help"
 
@@ -108,7 +114,7 @@ func parseFlags(fs *pflag.FlagSet, args []string) int {
 }
 
 // commands lists the subcommands, for "edgewise help CMD".
-var commands = map[string]bool{"describe": true, "simulate": true, "inspect": true, "fluct": true, "predict": true}
+var commands = map[string]bool{"describe": true, "simulate": true, "inspect": true, "fluct": true, "predict": true, "fit": true, "compare": true}
 
 // loadModel reads and parses a model spec and builds its network at the
 // start values. src is returned for the checksum stamped on outputs.
