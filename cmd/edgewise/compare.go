@@ -364,4 +364,3 @@ func yesNo(b bool, yes, no string) string {
 	}
 	return no
 }
-
