@@ -8,25 +8,9 @@ import (
 	"testing"
 
 	"edgewise/likelihood"
-	"edgewise/models"
 
 	"gonum.org/v1/gonum/mat"
 )
-
-// loadSpec reads a model spec file.
-func loadSpec(tb testing.TB, path string) *models.Model {
-	tb.Helper()
-	f, err := os.Open(path)
-	if err != nil {
-		tb.Fatal(err)
-	}
-	defer f.Close()
-	m, err := models.Parse(f, path)
-	if err != nil {
-		tb.Fatal(err)
-	}
-	return m
-}
 
 // TestFitAgainstSciPy: the maximum of ln L of a shipped example (the
 // three-state ring with six free rates, testdata/fit/ring3-free.toml, on

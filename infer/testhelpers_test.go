@@ -61,8 +61,8 @@ func recRing(u, w []float64, p float64) *models.Network {
 	return net
 }
 
-// recModel loads a shipped model spec at its start values.
-func recModel(tb testing.TB, path string) *models.Network {
+// loadSpec reads a model spec file.
+func loadSpec(tb testing.TB, path string) *models.Model {
 	tb.Helper()
 	f, err := os.Open(path)
 	if err != nil {
@@ -73,6 +73,13 @@ func recModel(tb testing.TB, path string) *models.Network {
 	if err != nil {
 		tb.Fatal(err)
 	}
+	return m
+}
+
+// recModel loads a shipped model spec at its start values.
+func recModel(tb testing.TB, path string) *models.Network {
+	tb.Helper()
+	m := loadSpec(tb, path)
 	net, err := m.Network(m.Start())
 	if err != nil {
 		tb.Fatal(err)
