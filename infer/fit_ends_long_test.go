@@ -10,9 +10,11 @@ import "testing"
 
 // TestFitSearchEndsLong: on 10^5 events simulated from a 3-state ring, a
 // 4-state ring and a two-cycle network (ring4 with a chord), with 12
-// starts each, the start at the truth and every converged random start
-// reach the same maximum, which is not below ln L at the truth
-// (checkSearchEnds; properties of a maximum, no source needed).
+// starts each, the start at the truth and most converged random starts
+// reach the same maximum, which is not below ln L at the truth; the other
+// starts end at maxima on the edge of the parameter space, never at a
+// second interior maximum (checkSearchEnds; properties of a maximum, no
+// source needed).
 func TestFitSearchEndsLong(t *testing.T) {
 	t.Run("ring3", func(t *testing.T) {
 		checkSearchEnds(t, parseSpec(t, fitRing3Spec), 100000, 12, 31)

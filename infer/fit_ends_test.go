@@ -70,9 +70,16 @@ func freeAll(m *models.Model) *models.Model {
 // spec's, i.e. the truth, then the scaled, data-informed and random ones),
 // and checks properties of the maximum that need no source:
 //   - the maximum is not below ln L at the true parameters;
-//   - the start at the truth and every random start that converged reach
-//     the best optimum (within sameOptimumTol = 0.01 nats, the fit's own
-//     definition of one optimum), and at least half the starts converge;
+//   - the start at the truth and at least half of the random starts that
+//     converged reach the best optimum (within sameOptimumTol = 0.01
+//     nats, the fit's own definition of one optimum), and at least half
+//     the starts converge;
+//   - a random start that ends at a lower optimum ends on the edge of the
+//     parameter space, with some rate run to 0 or infinity (a factor 1e4
+//     from the truth): the likelihood has no second interior maximum.
+//     Such edge maxima are genuine (the submodel without that rate has its
+//     own maximum; seen on the two-cycle network with 10^5 events: k43 ->
+//     3e-14 at 1.8 nats below the best, and k31 -> 2e-8 at 45 nats);
 //   - an independent local search on all the data (no exploration
 //     subsample, no refinement stage) from the truth ends at the same ln L
 //     within 0.01 nats and the same values within 0.05 standard errors.
@@ -108,17 +115,34 @@ func checkSearchEnds(t *testing.T, m *models.Model, events, starts int, seed uin
 	if s := res.Starts[0]; s.Kind != StartSpec || s.Optimum != 0 {
 		t.Errorf("the start at the truth (%s) ended at optimum %d, not at the best", s.Kind, s.Optimum)
 	}
-	randoms := 0
+	randoms, atBest := 0, 0
 	for i, s := range res.Starts {
-		if s.Kind == StartRandom && s.Converged {
-			randoms++
-			if s.Optimum != 0 {
-				t.Errorf("random start %d converged to optimum %d (ln L %.4f), not to the best (%.4f)", i, s.Optimum, res.Optima[s.Optimum].LogLik, res.LogLik)
+		if s.Kind != StartRandom || !s.Converged {
+			continue
+		}
+		randoms++
+		if s.Optimum == 0 {
+			atBest++
+			continue
+		}
+		// A lower optimum must be on the edge of the parameter space: a
+		// submodel with some rate run to 0 or infinity (a factor 1e4
+		// from its true value), never a second interior maximum.
+		o := res.Optima[s.Optimum]
+		edge := ""
+		for j, v := range o.X {
+			if r := v / truth[j]; r < 1e-4 || r > 1e4 {
+				edge += fmt.Sprintf(" %s = %.3g", res.Free[j], v)
 			}
 		}
+		if edge == "" {
+			t.Errorf("random start %d converged to an interior optimum %d (ln L %.4f, x %.4g) below the best (%.4f)", i, s.Optimum, o.LogLik, o.X, res.LogLik)
+		} else {
+			t.Logf("random start %d: lower optimum %d (ln L %.4f) on the edge:%s", i, s.Optimum, o.LogLik, edge)
+		}
 	}
-	if randoms == 0 || 2*conv < len(res.Starts) {
-		t.Errorf("%d of %d starts converged, %d random ones", conv, len(res.Starts), randoms)
+	if randoms == 0 || 2*atBest < randoms || 2*conv < len(res.Starts) {
+		t.Errorf("%d of %d starts converged; %d of %d converged random ones reached the best", conv, len(res.Starts), atBest, randoms)
 	}
 	// Independent route: one local search from the truth on all the data.
 	one, err := Fit(m, d, FitOptions{Starts: 1, Workers: 2, ExploreGaps: -1})
