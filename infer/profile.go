@@ -2,6 +2,7 @@ package infer
 
 import (
 	"context"
+	"fmt"
 	"math"
 
 	"edgewise/models"
@@ -43,6 +44,7 @@ func profileAll(ctx context.Context, res *FitResult, ob *objective, workers int,
 		open bool
 		hi   float64
 		ev   int
+		cut  bool // interrupted: the inner maximisations did not finish
 	}
 	out := make([]side, 2*p)
 	parallel(2*p, workers, func(task int) {
@@ -55,7 +57,7 @@ func profileAll(ctx context.Context, res *FitResult, ob *objective, workers int,
 			return
 		}
 		t, open, higher, ev := profileSide(ctx, res, ob, kinds, j, s, q)
-		out[task] = side{t: t, open: open, hi: higher, ev: ev}
+		out[task] = side{t: t, open: open, hi: higher, ev: ev, cut: ctx.Err() != nil}
 		prog.step("profile", 2*p)
 	})
 	for j := range res.Params {
@@ -63,6 +65,12 @@ func profileAll(ctx context.Context, res *FitResult, ob *objective, workers int,
 			continue
 		}
 		up, dn := out[2*j], out[2*j+1]
+		if up.cut || dn.cut {
+			// An interrupted side's end is not a profile crossing (its
+			// inner maximisations stopped early): report no interval.
+			res.Warnings = append(res.Warnings, fmt.Sprintf("%s: profile interval not computed (interrupted)", res.Params[j].Name))
+			continue
+		}
 		pi := &ProfileInterval{Level: res.Level, Method: "profile likelihood", UpperOpen: up.open, LowerOpen: dn.open, Evals: up.ev + dn.ev}
 		pi.Upper = valueOfWorking(kinds[j], up.t)
 		pi.Lower = valueOfWorking(kinds[j], dn.t)

@@ -63,6 +63,13 @@ func recRing(u, w []float64, p float64) *models.Network {
 	return net
 }
 
+// loadSpec reads a model spec file (readSpec, under the name the fit
+// tests use).
+func loadSpec(tb testing.TB, path string) *models.Model {
+	tb.Helper()
+	return readSpec(tb, path)
+}
+
 // recModel loads a shipped model spec at its start values.
 func recModel(tb testing.TB, path string) *models.Network {
 	tb.Helper()
