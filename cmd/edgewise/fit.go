@@ -64,6 +64,7 @@ func cmdFit(args []string, stdout, stderr io.Writer) int {
 	ff := c.addFitFlags(8)
 	profile := c.fs.Bool("profile", false, "profile-likelihood intervals for every free parameter (default: on up to 12 free parameters)")
 	noProfile := c.fs.Bool("no-profile", false, "no profile-likelihood intervals")
+	boot := c.fs.Int("bootstrap", 0, "parametric bootstrap: refit this many data sets simulated from the fitted model (0: none; at least 20)")
 	modelOut := c.fs.String("model-out", "", "write the fitted model as a spec (TOML) to this file")
 	plotPath := c.fs.String("plot", "", "write the gap densities with the fitted psi curves to this file (.png, .svg, .pdf)")
 	figWidth := c.fs.Float64("figure-width", 89, "figure width in mm: 89 for one journal column, 183 for the page width")
@@ -85,6 +86,9 @@ func cmdFit(args []string, stdout, stderr io.Writer) int {
 	}
 	if err := ff.check(); err != nil {
 		return c.usage("%v", err)
+	}
+	if *boot != 0 && (*boot < 20 || *boot > 100000) {
+		return c.usage("--bootstrap %d: want 0 (none) or 20 to 100000 replicates", *boot)
 	}
 	if *profile && *noProfile {
 		return c.usage("--profile and --no-profile together")
@@ -143,10 +147,18 @@ func cmdFit(args []string, stdout, stderr io.Writer) int {
 	opt.Progress = func(stage string, done, total int) { pb.add(1) }
 	res, err := infer.Fit(m, rin.d, opt)
 	pb.finish()
-	stop()
 	if err != nil {
+		stop()
 		return c.fail(1, rin.rep.Locate(err))
 	}
+	var bres *infer.BootResult
+	var bootErr error
+	if *boot > 0 && !res.Interrupted {
+		bp := c.progress(int64(*boot), "bootstrap", false)
+		bres, bootErr = infer.BootstrapFit(res, rin.d, infer.BootOptions{Replicates: *boot, Seed: *ff.seed, Workers: *ff.workers, Context: ctx, Progress: func(int, int) { bp.add(1) }})
+		bp.finish()
+	}
+	stop()
 	unit, unitNote := c.resolveTimeUnit(m.TimeUnit, rin.stamp["time_unit"])
 	notes = append(notes, nonEmpty(unitNote)...)
 	inputs := []output.Input{rin.input(), {Name: modelPath, SHA256: checksum(src)}}
@@ -156,6 +168,12 @@ func cmdFit(args []string, stdout, stderr io.Writer) int {
 	fitTables(r, res, derived, unit, opt)
 	if derr != nil {
 		r.Note("derived quantities not computed: %v", derr)
+	}
+	if bres != nil {
+		bootTable(r, bres, unit)
+	}
+	if bootErr != nil {
+		r.Note("parametric bootstrap not made: %v", bootErr)
 	}
 	var fitted *models.Model
 	if *modelOut != "" || *plotPath != "" {
@@ -394,4 +412,29 @@ func fitFigure(files *output.Files, path string, d *likelihood.Data, res *infer.
 	}
 	p.Title.Text = "gap densities psi_{l->l'}(t): data (points) and the fitted model (dashed)"
 	return writeFigure(files, path, []*plot.Plot{p}, width)
+}
+
+// bootTable shows the parametric-bootstrap percentile intervals.
+func bootTable(r *output.Report, b *infer.BootResult, u output.TimeUnit) {
+	t := output.NewTable("bootstrap", fmt.Sprintf("Parametric bootstrap (%d replicates, seed %d)", b.Replicates, b.Seed), "quantity",
+		output.Col("value", "estimate", ""), output.Col("sd", "bootstrap SD", ""),
+		output.Col("interval", pct(b.Level)+" percentile interval", ""), output.Col("n", "replicates used", ""))
+	add := func(bi infer.BootInterval) {
+		sd, iv := output.Num(bi.SD), output.Interval(bi.Lo, bi.Hi, b.Level, "parametric bootstrap, percentile")
+		if bi.N < 2 {
+			sd, iv = output.Undefined("fewer than 2 finite replicates"), output.Undefined("fewer than 2 finite replicates")
+		}
+		t.Add(output.Key(bi.Name), bi.Name, output.Num(bi.Value), sd, iv, output.Count(bi.N))
+	}
+	for _, p := range b.Params {
+		add(p)
+	}
+	for _, d := range b.Derived {
+		add(d)
+	}
+	if b.Failed > 0 {
+		t.Note("%d replicates failed to fit and are left out", b.Failed)
+	}
+	t.Note("data sets simulated from the fitted model with the records' structure (records and events per record) through the same instrument, each refitted from the fitted values")
+	r.Add(t)
 }
