@@ -80,4 +80,3 @@ func randomRates(m *models.Model, rng *rand.Rand) *models.Model {
 	}
 	return &mm
 }
-
