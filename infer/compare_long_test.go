@@ -4,7 +4,6 @@ package infer
 
 import (
 	"flag"
-	"math"
 	"math/rand/v2"
 	"testing"
 
@@ -40,7 +39,7 @@ func TestTopologyRecoveryLong(t *testing.T) {
 		wins := 0
 		for rep := 0; rep < *recoveryReps; rep++ {
 			rng := rand.New(rand.NewPCG(uint64(ti), uint64(rep)))
-			m := randomRates(tm, rng)
+			m := randomRatesModel(tm, rng)
 			d := truthData(t, m, uint64(1000*ti+rep), 1, 100000)
 			res, err := Compare(cands, d, CompareOptions{Fit: FitOptions{Starts: 4, Seed: uint64(rep)}})
 			if err != nil {
@@ -66,17 +65,4 @@ func deltaOf(res *Ranking, name string) float64 {
 		}
 	}
 	return -1
-}
-
-// randomRates returns a copy of m with every free rate drawn
-// log-uniformly in [0.3, 3].
-func randomRates(m *models.Model, rng *rand.Rand) *models.Model {
-	mm := *m
-	mm.Params = append([]models.Param(nil), m.Params...)
-	for i := range mm.Params {
-		if mm.Params[i].Kind == models.RateParam && !mm.Params[i].Fixed {
-			mm.Params[i].Value = 0.3 * math.Pow(10, rng.Float64())
-		}
-	}
-	return &mm
 }

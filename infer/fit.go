@@ -323,7 +323,7 @@ func Fit(m *models.Model, d *likelihood.Data, opt FitOptions) (*FitResult, error
 			res.Warnings = append(res.Warnings, "no standard errors: "+err.Error())
 		} else {
 			res.Info = info
-			id, err := analyseInformation(info, res.Free, kinds, res.X)
+			id, err := analyseInformation(info, res.Free, kinds, res.X, smallRates(res.X, kinds, d))
 			if err != nil {
 				res.Warnings = append(res.Warnings, "no standard errors: "+err.Error())
 			} else {
@@ -334,6 +334,10 @@ func Fit(m *models.Model, d *likelihood.Data, opt FitOptions) (*FitResult, error
 				for j := range res.Params {
 					pf := &res.Params[j]
 					pf.Determined = id.Determined[j]
+					if slices.Contains(id.NearZero, j) {
+						pf.AtBound = "near zero"
+						continue // no finite SE on the log scale
+					}
 					if pf.Determined {
 						pf.SELog = math.Sqrt(math.Max(id.Cov.At(j, j), 0))
 						pf.SE = pf.SELog * dxdw(kinds[j], pf.Value)
@@ -379,6 +383,25 @@ func shrunk1(x, anchor []float64, k int) []float64 {
 	f := math.Pow(0.5, float64(k))
 	for j := range out {
 		out[j] = math.Exp(f*math.Log(x[j]) + (1-f)*math.Log(anchor[j]))
+	}
+	return out
+}
+
+// smallRate: a fitted rate below smallRate times the records' visible
+// event rate is small on their time scale (it acts about once in 20 gaps
+// or less).
+const smallRate = 0.05
+
+// smallRates marks the free rates below smallRate times the visible event
+// rate of d.
+func smallRates(x []float64, kinds []models.ParamKind, d *likelihood.Data) []bool {
+	tg := targetsOf(d)
+	out := make([]bool, len(x))
+	if !(tg.meanGap > 0) {
+		return out
+	}
+	for j, v := range x {
+		out[j] = kinds[j] == models.RateParam && v < smallRate/tg.meanGap
 	}
 	return out
 }
@@ -683,7 +706,7 @@ func boundWord(b string) string {
 		return "its lower bound"
 	case "upper":
 		return "its upper bound"
-	case "zero":
+	case "zero", "near zero":
 		return "zero"
 	}
 	return "infinity"

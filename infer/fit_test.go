@@ -277,7 +277,7 @@ func TestNameFlatDirections(t *testing.T) {
 		for k := range lam {
 			lam[k] = 1e4 * float64(k+1)
 		}
-		id, err := analyseInformation(build(c.cs, lam), names, kinds, c.x)
+		id, err := analyseInformation(build(c.cs, lam), names, kinds, c.x, nil)
 		if err != nil {
 			t.Fatal(err)
 		}

@@ -55,11 +55,28 @@ type Identifiability struct {
 	// FlatVectors are unit vectors spanning the flat subspace (working
 	// coordinates).
 	FlatVectors [][]float64
+	// NearZero lists the parameters whose flat direction is that of a rate
+	// running to zero (see analyseInformation): they count in Effective,
+	// have no finite standard error on the log scale, and their profile
+	// interval reaches 0.
+	NearZero []int
 }
 
+// nearZeroWeight: a flat direction that puts at least this share of its
+// squared length on rates that are small on the records' time scale is
+// the direction of a rate running to zero, not a combination the data
+// cannot tell apart.
+const nearZeroWeight = 0.5
+
 // analyseInformation classifies the eigen-directions of info and names the
-// flat ones with the parameter names.
-func analyseInformation(info *mat.SymDense, names []string, kinds []models.ParamKind, x []float64) (*Identifiability, error) {
+// flat ones with the parameter names. small[j] marks rates that are small
+// on the records' time scale (Fit: below smallRate times the visible event
+// rate). In log coordinates such a rate is flat because it is near zero
+// (d ln L/d ln k = k d ln L/dk vanishes with k), not because the data
+// cannot tell it from another: the scheme without it fits as well, and it
+// still counts as a parameter (so that AIC and BIC prefer the smaller
+// scheme), with an interval reaching 0.
+func analyseInformation(info *mat.SymDense, names []string, kinds []models.ParamKind, x []float64, small []bool) (*Identifiability, error) {
 	p := len(names)
 	id := &Identifiability{Determined: make([]bool, p), Cov: mat.NewSymDense(max(p, 1), nil)}
 	if p == 0 {
@@ -85,6 +102,20 @@ func analyseInformation(info *mat.SymDense, names []string, kinds []models.Param
 			if l < -thr && l < -1e-4*lmax {
 				id.NotMaximum = true
 			}
+			ws := 0.0
+			for j := range v {
+				if small != nil && small[j] {
+					ws += v[j] * v[j]
+				}
+			}
+			if ws >= nearZeroWeight {
+				for j := range v {
+					if small[j] && v[j]*v[j] > flatWeight && !slices.Contains(id.NearZero, j) {
+						id.NearZero = append(id.NearZero, j)
+					}
+				}
+				continue
+			}
 			id.Flat++
 			id.FlatVectors = append(id.FlatVectors, v)
 			for i := 0; i < p; i++ {
@@ -104,6 +135,7 @@ func analyseInformation(info *mat.SymDense, names []string, kinds []models.Param
 	for j := 0; j < p; j++ {
 		id.Determined[j] = proj.At(j, j) <= flatWeight
 	}
+	slices.Sort(id.NearZero)
 	if id.Flat > 0 {
 		id.Statements = nameFlat(proj, names, kinds, x)
 	}

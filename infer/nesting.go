@@ -17,7 +17,7 @@ type NestedTest struct {
 	Small, Large string
 	How          string // how the nesting was found
 	LR           float64
-	DF           int // difference of the effective numbers of parameters
+	DF           int // difference of the numbers of free parameters
 	// Boundary is the number of parameters the small scheme holds at a
 	// bound of the large one's space (rates of absent edges at zero).
 	Boundary int
@@ -57,7 +57,12 @@ func NestedTests(rs []Ranked) []NestedTest {
 			if !ok {
 				continue
 			}
-			df := large.Fit.Effective() - small.Fit.Effective()
+			// Degrees of freedom: the difference of the free-parameter
+			// counts. (The effective counts of the ranking depend on the
+			// data: rates running to zero under the null make their
+			// directions flat, which would hide the very parameters
+			// under test.)
+			df := len(large.Fit.Free) - len(small.Fit.Free)
 			if df < 1 {
 				continue
 			}
