@@ -121,4 +121,52 @@
 // Kolmogorov-Smirnov and Anderson-Darling tests (goodness.go,
 // onesample.go); with parameters fitted to the same data the test is
 // conservative (see goodness.go).
+//
+// # Fitting
+//
+// Fit maximises the exact log-likelihood (package likelihood) over a
+// model's free parameters. The optimiser works in unconstrained
+// coordinates u: a rate with no upper bound is x = lo + exp(c + A
+// tanh((u - c)/A)), A = 46 (every trial step keeps the rate within e^46 of
+// its start, and near the start the map is ln x = u), and a rate with an
+// upper bound or a detection probability is x = lo + (hi - lo)/(1 + e^-u);
+// bounds are never crossed, ties and affinity constraints hold exactly
+// (models.Model.Network). Each start runs BFGS (gonum/optimize, More-Thuente
+// line search) on -ln L/n with the exact gradient, to |d ln L/du| <=
+// 1e-4 sqrt(n) (n gaps). Starts: the spec's values, a copy scaled to the
+// data's mean gap, data-informed starts (the best of 48 random draws by the
+// distance of their P(l'|l) to the data's) and random ones (log-normal,
+// factor 4.5 at one SD); the seed fixes them. With more than twice
+// ExploreGaps gaps the starts run on an exploration subsample (blocks
+// spread evenly over the records), the ends are grouped into distinct
+// optima (ln L within 0.01 nats), and each is refined on all the data by
+// BFGS preconditioned with the subsample's curvature (a few steps). The
+// observed information I = -d^2 ln L/dw dw^T (w = ln rate, logit p) comes
+// from central differences of the exact gradient; its eigen-directions
+// below max(1e-7 lambda_max, 1/10^2) are flat (a standard error above e^10
+// is no determination), named in the parameters (identifiability.go), and
+// left out of the effective number of parameters k that AIC, AICc and BIC
+// use, except the direction of a rate running to zero (it still counts).
+// Profile-likelihood intervals (profile.go; Venzon and Moolgavkar, Appl.
+// Stat. 37, 87 (1988)) follow the signed root deviance by secant steps,
+// each point a constrained BFGS; a side that never reaches the chi-square
+// threshold is open. DerivedQuantities carries the exact sensitivities of
+// sigma, F, J, the cycle affinities, the edge currents and the mean gaps
+// through I^-1 (delta method); BootstrapFit refits simulated data sets.
+//
+// # Ranking
+//
+// Compare fits every candidate and holds it against the records' own
+// Evidence (F, shape test, Markov order, valid entropy bounds, count-stopped
+// windows): CheckConsistency makes one Holm family per candidate (gap
+// goodness of fit, F by the exact likelihood-ratio test, P_n(c) G-tests,
+// sigma against the valid bound, a known force) and applies the structural
+// rules (shape: the data's psi(++) and psi(--) differ while the model's
+// ratio is constant in t; Markov order: the labels are not first order
+// while each of the model's labels sits on one directed edge). A scheme
+// that cannot produce a label pair of the records is ruled out without a
+// fit (ImpossibleError). Candidates are ranked by BIC; NestedTests tests
+// nested pairs by the likelihood ratio, with the chi-bar-square mixture
+// when rates are tested at zero (Self and Liang, JASA 82, 605 (1987)). A
+// consistent candidate is not thereby true, nor the only one.
 package infer
