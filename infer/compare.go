@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"math"
 	"slices"
+	"strings"
 
 	"edgewise/likelihood"
 	"edgewise/models"
@@ -31,6 +32,12 @@ type CompareOptions struct {
 	// at it (tight coupling), and the likelihood ratio of that model
 	// against the free one joins each candidate's checks.
 	KnownAffinity *float64
+	// KnownCycles are cycles whose affinities the user knows, by their
+	// states: each candidate that has such a cycle is refitted with it
+	// held at its value, and the likelihood ratio joins its checks
+	// (candidates without any of the cycles are not tested). Used instead
+	// of KnownAffinity when both are given.
+	KnownCycles []KnownCycle
 	// Shard selects a deterministic share of the candidates: those with
 	// index i such that i mod Shard.Of == Shard.Index. Zero value: all.
 	Shard Shard
@@ -116,7 +123,10 @@ func Compare(cands []Candidate, d *likelihood.Data, o CompareOptions) (*Ranking,
 		default:
 			r.Fit = fit
 			var known *Check
-			if o.KnownAffinity != nil {
+			switch {
+			case len(o.KnownCycles) > 0:
+				known = knownCyclesCheck(c.Model, fit, d, ev.Plus, o.KnownCycles, o.Fit)
+			case o.KnownAffinity != nil:
 				known = knownCheck(c.Model, fit, d, ev.Plus, *o.KnownAffinity, o.Fit)
 			}
 			cons, err := CheckConsistency(fit, d, ev, ConsistencyOptions{Likelihood: o.Fit.Likelihood, Level: ev.Level, Seed: o.Fit.Seed, Known: known})
@@ -152,6 +162,36 @@ func knownCheck(m *models.Model, free *FitResult, d *likelihood.Data, plus strin
 		return &ch
 	}
 	ch := KnownForceTest(free, con, fmt.Sprintf("%.4g k_BT on every cycle through the visible edge (tight coupling)", value))
+	return &ch
+}
+
+// knownCyclesCheck fits the candidate with the known cycles it has held at
+// their values and returns the likelihood-ratio check; nil when it has
+// none of them.
+func knownCyclesCheck(m *models.Model, free *FitResult, d *likelihood.Data, plus string, known []KnownCycle, fo FitOptions) *Check {
+	mc, n, err := WithKnownCycles(m, plus, known)
+	var names []string
+	for _, k := range known {
+		names = append(names, k.String())
+	}
+	what := "known cycle affinities " + strings.Join(names, ", ")
+	if err != nil {
+		ch := Check{Name: what, P: math.NaN(), Adjusted: math.NaN(), Note: "cannot impose them: " + err.Error()}
+		return &ch
+	}
+	if n == 0 {
+		return nil
+	}
+	mc = modelAt(mc, free.Free, free.X)
+	fo.Starts = max(2, fo.Starts/2)
+	fo.Profile = false
+	con, err := Fit(mc, d, fo)
+	if err != nil {
+		ch := Check{Name: what, P: math.NaN(), Adjusted: math.NaN(), Note: "the constrained fit failed: " + err.Error()}
+		return &ch
+	}
+	ch := KnownForceTest(free, con, what)
+	ch.Name = "known force " + strings.Join(names, ", ")
 	return &ch
 }
 

@@ -179,10 +179,51 @@ func TightCoupling(m *models.Model, plus string, value float64) (*models.Model, 
 	if err != nil {
 		return nil, err
 	}
-	out := cloneModel(m)
 	if len(cycles) == 0 {
-		return out, nil
+		return cloneModel(m), nil
 	}
+	return imposeAffinity(m, cycles, plus, value, fmt.Sprintf("tight coupling: every cycle crossing %q once has affinity %g k_BT", plus, value))
+}
+
+// KnownCycle is a cycle whose affinity the user knows: chemical driving
+// minus load times step, in k_BT.
+type KnownCycle struct {
+	States []string // closed: States[0] == States[len-1], e.g. A, B, C, A
+	Value  float64
+}
+
+// String writes "A-B-C-A=4".
+func (k KnownCycle) String() string { return fmt.Sprintf("%s=%g", strings.Join(k.States, "-"), k.Value) }
+
+// WithKnownCycles returns a copy of m with each known cycle that m has (by
+// its states, in either direction: the reverse cycle has the opposite
+// affinity) held at its value by an affinity constraint, and the number of
+// cycles imposed; cycles m does not have are skipped. plus names the
+// visible edge's forward label (its rates are solved only as a last
+// resort).
+func WithKnownCycles(m *models.Model, plus string, known []KnownCycle) (*models.Model, int, error) {
+	out, n := m, 0
+	for _, k := range known {
+		if _, err := out.CycleSteps(k.States, nil); err != nil {
+			continue
+		}
+		mc, err := imposeAffinity(out, []CyclePath{{States: k.States}}, plus, k.Value, "known affinity "+k.String())
+		if err != nil {
+			return nil, 0, err
+		}
+		if len(mc.Affinities) > len(out.Affinities) {
+			n++
+		}
+		out = mc
+	}
+	return out, n, nil
+}
+
+// imposeAffinity adds to a copy of m one affinity constraint at value per
+// cycle of a maximal independent subset of cycles (see TightCoupling for
+// the choice of the solved rate); desc is appended to the description.
+func imposeAffinity(m *models.Model, cycles []CyclePath, plus string, value float64, desc string) (*models.Model, error) {
+	out := cloneModel(m)
 	params := map[string]models.Param{}
 	for _, p := range m.Params {
 		params[p.Name] = p
@@ -228,7 +269,7 @@ func TightCoupling(m *models.Model, plus string, value float64) (*models.Model, 
 		}
 		s := chooseSolve(m, cyc, coef, rows, solved, params, visible)
 		if s == "" {
-			return nil, fmt.Errorf("model %s: no free rate of cycle %s can be solved from the tight-coupling constraint alongside the model's other constraints", m.Name, cyc)
+			return nil, fmt.Errorf("model %s: no free rate of cycle %s can be solved from the constraint alongside the model's other constraints", m.Name, cyc)
 		}
 		rows, vals, solved = append(rows, coef), append(vals, value), append(solved, s)
 		out.Affinities = append(out.Affinities, models.AffinitySpec{Cycle: cyc.States, Edges: cyc.Edges, Value: value, Solve: s})
@@ -240,10 +281,10 @@ func TightCoupling(m *models.Model, plus string, value float64) (*models.Model, 
 			out.Params = append(out.Params, p)
 		}
 	}
-	out.Description = strings.TrimSpace(fmt.Sprintf("%s; tight coupling: every cycle crossing %q once has affinity %g k_BT", m.Description, plus, value))
+	out.Description = strings.TrimSpace(fmt.Sprintf("%s; %s", m.Description, desc))
 	parsed, err := roundTrip(out)
 	if err != nil {
-		return nil, fmt.Errorf("model %s with tight coupling: %w", m.Name, err)
+		return nil, fmt.Errorf("model %s with %s: %w", m.Name, desc, err)
 	}
 	return parsed, nil
 }

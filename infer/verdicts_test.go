@@ -132,3 +132,30 @@ func TestChiBarSquare(t *testing.T) {
 		}
 	}
 }
+
+// A known affinity of a named cycle: the ring's cycle A-B-C-A held at 0
+// (equilibrium) is rejected on driven data, held at its true value ln 75
+// it is not, and the reverse cycle A-C-B-A carries the opposite affinity.
+func TestVerdictKnownCycle(t *testing.T) {
+	m := parseSpec(t, fitRing3Spec)
+	d := truthData(t, m, 33, 1, 10000)
+	run := func(k KnownCycle) Ranked {
+		res, err := Compare([]Candidate{{Name: "ring3", Model: m}}, d, CompareOptions{Fit: FitOptions{Starts: 2, Seed: 1, Workers: 2}, KnownCycles: []KnownCycle{k}})
+		if err != nil {
+			t.Fatal(err)
+		}
+		return res.Ranked[0]
+	}
+	if r := run(KnownCycle{States: []string{"A", "B", "C", "A"}, Value: 0}); !hasReason(r.Reasons(), "known force") {
+		t.Errorf("equilibrium on the named cycle not ruled out: %q", r.Reasons())
+	}
+	if r := run(KnownCycle{States: []string{"A", "B", "C", "A"}, Value: 4.3175}); hasReason(r.Reasons(), "known force") {
+		t.Errorf("the true affinity ruled out: %q", r.Reasons())
+	}
+	if r := run(KnownCycle{States: []string{"A", "C", "B", "A"}, Value: -4.3175}); hasReason(r.Reasons(), "known force") {
+		t.Errorf("the reverse cycle at minus the true affinity ruled out: %q", r.Reasons())
+	}
+	if r := run(KnownCycle{States: []string{"A", "B", "D", "A"}, Value: 1}); r.Consistency == nil || len(r.Consistency.Checks) == 0 || hasReason(r.Reasons(), "known force") {
+		t.Errorf("a cycle the model does not have changed the verdict: %q", r.Reasons())
+	}
+}
