@@ -193,7 +193,9 @@ type KnownCycle struct {
 }
 
 // String writes "A-B-C-A=4".
-func (k KnownCycle) String() string { return fmt.Sprintf("%s=%g", strings.Join(k.States, "-"), k.Value) }
+func (k KnownCycle) String() string {
+	return fmt.Sprintf("%s=%g", strings.Join(k.States, "-"), k.Value)
+}
 
 // WithKnownCycles returns a copy of m with each known cycle that m has (by
 // its states, in either direction: the reverse cycle has the opposite
