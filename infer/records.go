@@ -132,6 +132,17 @@ func (r *ReadReport) ZeroGaps() string {
 // at that event's line, when the report knows the line (a zero gap: the
 // first of its record); any other error is returned unchanged.
 func (r *ReadReport) Locate(err error) error {
+	var imp *ImpossibleError
+	if r != nil && errors.As(err, &imp) {
+		for _, rr := range r.Records {
+			// Rows of a record are contiguous; without comment or blank
+			// lines inside it, event k sits on line FirstLine + k - 1.
+			if rr.ID == imp.Record && rr.Rows == rr.Events && rr.LastLine-rr.FirstLine+1 == rr.Rows && imp.Event <= rr.Events {
+				return &ReadError{File: r.File, Line: rr.FirstLine + imp.Event - 1, Field: "label", Msg: imp.Error()}
+			}
+		}
+		return err
+	}
 	var zg *likelihood.ZeroGapError
 	if r == nil || !errors.As(err, &zg) {
 		return err

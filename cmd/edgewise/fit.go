@@ -240,6 +240,20 @@ func fittedModel(res *infer.FitResult) *models.Model {
 // fitTables adds the fit's tables to r.
 func fitTables(r *output.Report, res *infer.FitResult, derived []infer.Derived, u output.TimeUnit, opt infer.FitOptions) {
 	level := res.Level
+	if len(res.Free) == 0 {
+		st := output.NewTable("summary", "Log-likelihood of the records (no free parameter: nothing fitted)", "quantity", output.Col("value", "value", ""))
+		st.Add("log_likelihood", "ln L (nats)", output.Fixed(res.LogLik, 2))
+		st.Add("events", "events", output.Count(res.Events))
+		st.Add("records", "records", output.Count(res.Records))
+		st.Add("gaps", "gaps n", output.Count(res.Gaps))
+		st.Add("AIC", "AIC = -2 ln L (k = 0)", output.Fixed(res.AIC(), 2))
+		st.Add("BIC", "BIC = -2 ln L (k = 0)", output.Fixed(res.BIC(), 2))
+		r.Add(st)
+		for _, w := range res.Warnings {
+			r.Note("%s", w)
+		}
+		return
+	}
 	pt := output.NewTable("parameters", "Fitted parameters", "parameter",
 		output.Col("value", "value", ""), output.Col("unit", "unit", ""),
 		output.Col("se_log", "SE of ln", ""), output.Col("se", "SE", ""),

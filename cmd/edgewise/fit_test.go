@@ -64,12 +64,18 @@ func TestFitBadInput(t *testing.T) {
 	dir := t.TempDir()
 	other := filepath.Join(dir, "other.csv")
 	os.WriteFile(other, []byte("time,label\n0,up\n1,down\n2,up\n"), 0o644)
+	alt := filepath.Join(dir, "alt.csv")
+	os.WriteFile(alt, []byte("time,label\n0,+\n1,+\n2,-\n3,+\n"), 0o644)
+	chain := filepath.Join(dir, "chain.toml")
+	os.WriteFile(chain, []byte("name = \"chain2\"\nstates = [\"A\", \"B\"]\n[[edge]]\nbetween = [\"A\", \"B\"]\nrates = [\"kab\", \"kba\"]\nlabels = [\"+\", \"-\"]\n[param.kab]\nvalue = 1.0\n[param.kba]\nvalue = 1.0\n"), 0o644)
 	for _, c := range []struct {
 		args []string
 		code int
 		msg  string
 	}{
 		{[]string{"fit", other, "../../testdata/ring3.toml"}, 1, `label(s) "up", "down"`},
+		{[]string{"fit", alt, chain}, 1, "alt.csv:3: label: the records are impossible under chain2"},
+		{[]string{"fit", "../../testdata/ring3-demo.csv", "../../testdata/ring3.toml", "--bootstrap", "5"}, 2, "--bootstrap"},
 		{[]string{"fit", "../../testdata/ring3.toml", "../../testdata/ring3.toml"}, 2, "looks like a model spec"},
 		{[]string{"fit", "../../testdata/ring3-demo.csv"}, 2, "want RECORDS MODEL"},
 		{[]string{"fit", "../../testdata/ring3-demo.csv", "../../testdata/ring3.toml", "--starts", "0"}, 2, "--starts"},
