@@ -96,6 +96,9 @@ func (p *parser) next() error {
 		for err == bufio.ErrBufferFull {
 			b, err = p.br.ReadSlice('\n')
 			p.long = append(p.long, b...)
+			if len(p.long) > MaxLineBytes {
+				return &ReadError{File: p.file, Line: p.lineNo + 1, Msg: fmt.Sprintf("line longer than %d bytes: not a records file", MaxLineBytes)}
+			}
 		}
 		b = p.long
 	}
@@ -109,6 +112,9 @@ func (p *parser) next() error {
 	p.rep.Lines++
 	p.bytes += int64(len(b))
 	if p.lineNo == 1 {
+		if bytes.HasPrefix(b, []byte("\xff\xfe")) || bytes.HasPrefix(b, []byte("\xfe\xff")) || bytes.IndexByte(b, 0) >= 0 {
+			return &ReadError{File: p.file, Line: 1, Msg: "UTF-16 text (or binary data): save the file as UTF-8"}
+		}
 		b = bytes.TrimPrefix(b, []byte("\xef\xbb\xbf"))
 	}
 	if n := len(b); n > 0 && b[n-1] == '\n' {
