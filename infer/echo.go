@@ -4,8 +4,8 @@
 package infer
 
 import (
+	"edgewise/models"
 	"fmt"
-	"strconv"
 	"strings"
 )
 
@@ -19,24 +19,8 @@ const (
 	MaxLineBytes     = 1 << 20 // a line
 )
 
-// echoBytes is how much of an input string an error message repeats.
-const echoBytes = 40
-
-// clip quotes s for an error message, cut to its first 40 bytes (at a
-// character boundary) with the full length said, so that a message never
-// repeats a long input whole.
-func clip[T string | []byte](s T) string {
-	if len(s) <= echoBytes {
-		return strconv.Quote(string(s))
-	}
-	cut := echoBytes
-	for cut > 0 && !isRuneStart(s[cut]) {
-		cut--
-	}
-	return fmt.Sprintf("%s... (%d bytes)", strconv.Quote(string(s[:cut])), len(s))
-}
-
-func isRuneStart(b byte) bool { return b&0xc0 != 0x80 }
+// clip is models.Clip for a string or bytes.
+func clip[T string | []byte](s T) string { return models.Clip(string(s)) }
 
 // clipList joins names with ", " for a message, each clipped, and at most
 // 10 of them.
