@@ -155,7 +155,7 @@ func cmdFluct(args []string, stdout, stderr io.Writer) int {
 	edge := infer.EdgeLabels{Forward: fwd, Backward: bwd}
 	res, err := infer.FluctuationTest(d, ns, infer.FluctOptions{Labels: edge, Level: *level, Boot: *boot, Seed: *seed, FixedTime: *fixed})
 	if err != nil {
-		return fail(1, err)
+		return fail(1, fmt.Errorf("%s: %w", path, err))
 	}
 	r := &report{Tool: "edgewise " + version, Command: "fluct " + strings.Join(args, " "), Input: path, Checksum: sum, Seed: strconv.FormatUint(*seed, 10)}
 	checks := infer.FluctChecks(res, 1-*level)
