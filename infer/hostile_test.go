@@ -2,6 +2,7 @@ package infer
 
 import (
 	"math"
+	"math/rand/v2"
 	"runtime"
 	"strings"
 	"testing"
@@ -38,5 +39,40 @@ func TestFluctHugeWindow(t *testing.T) {
 	runtime.ReadMemStats(&m1)
 	if a := m1.TotalAlloc - m0.TotalAlloc; a > 50<<20 {
 		t.Errorf("allocated %d bytes for 2001 records and n = 10000 (2000 tables of 2n+1 counts would be 640 MB)", a)
+	}
+}
+
+// TestHomogeneityFlat: the flat homogeneity G (one pass, no table per
+// group) equals the sum over l of the independence G of each groups x
+// next-label table built as nested slices (independenceG, another route),
+// with its degrees of freedom and pair count, on random sparse counts.
+func TestHomogeneityFlat(t *testing.T) {
+	rng := rand.New(rand.NewPCG(3, 3))
+	for trial := 0; trial < 200; trial++ {
+		k, groups := 1+rng.IntN(4), 1+rng.IntN(6)
+		counts := make([]int, groups*k*k)
+		for i := range counts {
+			if rng.IntN(3) > 0 {
+				counts[i] = rng.IntN(20)
+			}
+		}
+		g, df, n, _ := homogeneityG(counts, k, nil)
+		wg, wdf, wn := 0.0, 0, 0
+		for l := 0; l < k; l++ {
+			tab := make([][]float64, groups)
+			for gi := range tab {
+				tab[gi] = make([]float64, k)
+				for b := range k {
+					tab[gi][b] = float64(counts[(gi*k+l)*k+b])
+					wn += counts[(gi*k+l)*k+b]
+				}
+			}
+			gl, dl := independenceG(tab)
+			wg += gl
+			wdf += dl
+		}
+		if math.Abs(g-wg) > 1e-9*(1+wg) || df != wdf || n != wn {
+			t.Fatalf("trial %d: G %v df %d n %d, want %v %d %d", trial, g, df, n, wg, wdf, wn)
+		}
 	}
 }

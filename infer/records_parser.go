@@ -55,17 +55,19 @@ type parser struct {
 	hinted bool
 	last   []labelCache
 
-	cur      *likelihood.Record
-	curRep   *RecordReport
-	curID    string
-	ended    bool // an end row closed the current record
-	endLine  int
-	lastLine int // line of the last event row
-	state    string
-	stateSet bool
-	lastT    float64 // time of the last row (trace) or event
-	lastText []byte  // the time field of the last row
-	haveT    bool
+	cur       *likelihood.Record // &curVal while a record is open, else nil
+	curVal    likelihood.Record
+	curRepVal RecordReport
+	curRep    *RecordReport
+	curID     string
+	ended     bool // an end row closed the current record
+	endLine   int
+	lastLine  int // line of the last event row
+	state     string
+	stateSet  bool
+	lastT     float64 // time of the last row (trace) or event
+	lastText  []byte  // the time field of the last row
+	haveT     bool
 }
 
 func newParser(r io.Reader, file string, opt ReadOptions) *parser {

@@ -267,9 +267,12 @@ func (p *parser) row() error {
 }
 
 func (p *parser) open(id string) {
-	p.cur = &likelihood.Record{ID: id, End: math.NaN()}
+	// The open record lives in the parser (no allocation per record).
+	p.curVal = likelihood.Record{ID: id, End: math.NaN()}
+	p.cur = &p.curVal
 	p.start = len(p.times)
-	p.curRep = &RecordReport{ID: id, FirstLine: p.lineNo}
+	p.curRepVal = RecordReport{ID: id, FirstLine: p.lineNo}
+	p.curRep = &p.curRepVal
 	p.curID = id
 	p.ended = false
 	p.haveT = false
