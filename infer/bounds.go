@@ -207,7 +207,7 @@ func EntropyBounds(d *likelihood.Data, opt BoundOptions) (*Bounds, error) {
 	default:
 		b.TUR = turEstimate(tur0, j0, d0, bj, bd, opt.Level)
 	}
-	b.waitingTime(d, fw, cf.blocks, cf.tmax, opt)
+	b.waitingTime(d, fw, cf.raw, cf.tmax, opt)
 	if !b.Validity.Hold {
 		why := "withheld: " + b.Reason
 		for _, e := range []*Estimate{&b.FJ, &b.TUR, &b.Sequence, &b.WaitingTime, &b.Transition} {
@@ -219,13 +219,13 @@ func EntropyBounds(d *likelihood.Data, opt BoundOptions) (*Bounds, error) {
 
 // waitingTime fills the sequence, waiting-time and transition parts and
 // their jackknife intervals.
-func (b *Bounds) waitingTime(d *likelihood.Data, fw uint8, blocks []boundBlock, tmax float64, opt BoundOptions) {
+func (b *Bounds) waitingTime(d *likelihood.Data, fw uint8, raw int, tmax float64, opt BoundOptions) {
 	type gap struct {
 		v float64 // ln(gap)
 		g int32   // jackknife group
 	}
 	var gaps [2][]gap // ++ and --
-	G := min(opt.Groups, len(blocks))
+	G := min(opt.Groups, raw)
 	var dur = make([]float64, G)
 	var cnt = make([][2][2]int64, G)
 	bi := 0
@@ -233,12 +233,12 @@ func (b *Bounds) waitingTime(d *likelihood.Data, fw uint8, blocks []boundBlock, 
 	for r := range d.Records {
 		rec := &d.Records[r]
 		t0, t1 := fluctSpan(rec)
-		nb := max(1, int(math.Ceil((t1-t0)/tmax)))
+		nb := recordBlocks(rec, tmax)
 		for k := 1; k < len(rec.Time); k++ {
 			// The block that boundBlocks puts event k in (times on a
 			// boundary belong to the earlier block).
 			blk := bi + max(0, min(nb-1, int(math.Ceil((rec.Time[k]-t0)/tmax))-1))
-			g := int32(blk * G / len(blocks))
+			g := int32(blk * G / raw)
 			a, c := fluctSide(rec.Label[k-1], fw), fluctSide(rec.Label[k], fw)
 			cnt[g][a][c]++
 			if a != c {
@@ -252,7 +252,12 @@ func (b *Bounds) waitingTime(d *likelihood.Data, fw uint8, blocks []boundBlock, 
 			gaps[a] = append(gaps[a], gap{math.Log(dt), g})
 		}
 		for j := 0; j < nb; j++ {
-			dur[(bi+j)*G/len(blocks)] += blocks[bi+j].dur
+			// Block j's duration, as currentBlocks makes it.
+			be := math.Min(t0+float64(j+1)*tmax, t1)
+			if j == nb-1 {
+				be = t1
+			}
+			dur[(bi+j)*G/raw] += be - (t0 + float64(j)*tmax)
 		}
 		bi += nb
 	}

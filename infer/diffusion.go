@@ -134,10 +134,11 @@ type currentFit struct {
 	mgap    float64 // span / events
 	tmax    float64 // longest window = block duration
 	grid    []float64
-	levels  int       // grid points held by the blocks: all, or the first nfit
-	nfit    int       // grid points in the fit (the longest ones)
-	weights []float64 // fit weights W_j / t_j^2 (see the top of this file)
-	blocks  []boundBlock
+	levels  int          // grid points held by the blocks: all, or the first nfit
+	nfit    int          // grid points in the fit (the longest ones)
+	weights []float64    // fit weights W_j / t_j^2 (see the top of this file)
+	blocks  []boundBlock // jackknife units: blocks, or groups of consecutive blocks
+	raw     int          // blocks before grouping
 	tot     boundTotals
 }
 
@@ -176,7 +177,7 @@ func newCurrentFit(recs []likelihood.Record, fw, bw uint8, fitOnly bool) *curren
 	if fitOnly {
 		f.levels = f.nfit
 	}
-	f.blocks = currentBlocks(recs, fw, bw, f.tmax, f.grid[:f.levels])
+	f.blocks, f.raw = currentBlocks(recs, fw, bw, f.tmax, f.grid[:f.levels], maxJackGroups)
 	f.tot = sumBoundBlocks(f.blocks, f.levels)
 	f.weights = make([]float64, f.nfit)
 	for j := range f.weights {
@@ -197,9 +198,27 @@ func newCurrentFit(recs []likelihood.Record, fw, bw uint8, fitOnly bool) *curren
 // is counted once per window of the shortest duration and summed pairwise
 // up the levels, which gives the same windows as counting each level on
 // its own, at the cost of one pass over the events.
-func currentBlocks(recs []likelihood.Record, fw, bw uint8, tmax float64, grid []float64) []boundBlock {
+//
+// With groups > 0 and more blocks than that, consecutive blocks are summed
+// into groups blocks (block i of B into group i*groups/B), so that many
+// short records cost one block of memory per group, not per record. It
+// also returns B, the number of blocks before grouping.
+func currentBlocks(recs []likelihood.Record, fw, bw uint8, tmax float64, grid []float64, groups int) ([]boundBlock, int) {
 	var blocks []boundBlock
 	ng := len(grid)
+	raw := 0
+	for r := range recs {
+		raw += recordBlocks(&recs[r], tmax)
+	}
+	units := raw
+	if groups > 0 && raw > groups {
+		units = groups
+	}
+	blocks = make([]boundBlock, units)
+	for i := range blocks {
+		blocks[i] = boundBlock{w: make([]float64, ng), s: make([]float64, ng), q: make([]float64, ng)}
+	}
+	done := 0 // blocks made so far; block done adds to unit done*units/raw
 	// Tables instead of branches on the label (random labels would
 	// mispredict): current step, activity step and pair side.
 	var step, act [256]float64
@@ -216,10 +235,7 @@ func currentBlocks(recs []likelihood.Record, fw, bw uint8, tmax float64, grid []
 		// waiting-time jackknife of EntropyBounds counts blocks per record.
 		times, labels := rec.Time, rec.Label[:len(rec.Time)]
 		t0, t1 := fluctSpan(rec)
-		nb := 1
-		if tmax > 0 {
-			nb = max(1, int(math.Ceil((t1-t0)/tmax)))
-		}
+		nb := recordBlocks(rec, tmax)
 		k := 1
 		for bi := 0; bi < nb; bi++ {
 			bs := t0 + float64(bi)*tmax
@@ -228,7 +244,11 @@ func currentBlocks(recs []likelihood.Record, fw, bw uint8, tmax float64, grid []
 			if last {
 				be = t1
 			}
-			b := boundBlock{dur: be - bs, w: make([]float64, ng), s: make([]float64, ng), q: make([]float64, ng)}
+			// Every statistic is added to its unit: a block, or the
+			// group that holds it.
+			b := &blocks[done*units/raw]
+			done++
+			b.dur += be - bs
 			k0 := k
 			k1 := len(times)
 			if !last {
@@ -241,7 +261,8 @@ func currentBlocks(recs []likelihood.Record, fw, bw uint8, tmax float64, grid []
 				n += act[l]
 				b.pairs[side[labels[i-1]]][side[l]]++
 			}
-			b.c, b.n = c, n
+			b.c += c
+			b.n += n
 			k = k1
 			if ng > 0 {
 				L := ng - 1
@@ -301,17 +322,35 @@ func currentBlocks(recs []likelihood.Record, fw, bw uint8, tmax float64, grid []
 						s += c
 						q += c * c
 					}
-					b.w[j], b.s[j], b.q[j] = float64(n), s, q
+					b.w[j] += float64(n)
+					b.s[j] += s
+					b.q[j] += q
 					for h := 0; h < n/2; h++ {
 						cw[h] = cw[2*h] + cw[2*h+1]
 					}
 				}
 			}
-			blocks = append(blocks, b)
 		}
 	}
-	return blocks
+	return blocks, raw
 }
+
+// recordBlocks is the number of blocks of duration tmax that cut a record
+// from its first event (the last one shorter; at least one, also for an
+// empty record).
+func recordBlocks(rec *likelihood.Record, tmax float64) int {
+	if !(tmax > 0) {
+		return 1
+	}
+	t0, t1 := fluctSpan(rec)
+	return max(1, int(math.Ceil((t1-t0)/tmax)))
+}
+
+// maxJackGroups is the most jackknife units of the variance curve and of
+// the rates: beyond it consecutive blocks are grouped (a long record has
+// about 400 blocks; 10^6 short records would otherwise make 10^6 units,
+// with a fit per delete-one replicate).
+const maxJackGroups = 1000
 
 // searchAfter returns the first index i in [lo, hi) of the sorted x with
 // x[i] > v, or hi when there is none: a galloping search from lo (cost
@@ -380,6 +419,9 @@ func (f *currentFit) jackknife(each func(t *boundTotals)) int {
 // method describes the jackknife.
 func (f *currentFit) method(logScale bool) string {
 	m := fmt.Sprintf("delete-one-block jackknife, %d blocks of %.4g time units, Student t on %d df", len(f.blocks), f.tmax, len(f.blocks)-1)
+	if f.raw > len(f.blocks) {
+		m = fmt.Sprintf("delete-one-group jackknife, %d groups of consecutive blocks (%d blocks of at most %.4g time units), Student t on %d df", len(f.blocks), f.raw, f.tmax, len(f.blocks)-1)
+	}
 	if logScale {
 		m += ", log scale"
 	}

@@ -102,7 +102,7 @@ func TestCurrentBlocksDirect(t *testing.T) {
 		// an exactly representable grid, so that boundaries fall on
 		// integer event times.
 		for _, g := range [][]float64{cf.grid, cf.grid[:min(4, len(cf.grid))], {64, 32, 16, 8, 4, 2, 1, 0.5}, {256, 128}} {
-			got := currentBlocks(d.Records, 0, 1, g[0], g)
+			got, _ := currentBlocks(d.Records, 0, 1, g[0], g, 0)
 			want := refCurrentBlocks(d.Records, 0, 1, g[0], g)
 			if len(got) != len(want) {
 				t.Fatalf("trial %d: %d blocks, want %d", trial, len(got), len(want))

@@ -232,12 +232,21 @@ func FluctuationTest(d *likelihood.Data, ns []int, opt FluctOptions) ([]Fluctuat
 	if err := CheckTimes(d); err != nil {
 		return nil, fmt.Errorf("fluctuation test: %w", err)
 	}
-	fhat := EffectiveAffinity(d, fw, bw, AffinityOptions{Level: opt.Level})
-	out := make([]Fluctuation, 0, len(ns))
+	longest := 0
+	for r := range d.Records {
+		longest = max(longest, d.Records[r].Len())
+	}
 	for _, n := range ns {
 		if n < 1 {
 			return nil, fmt.Errorf("fluctuation test: window length %d < 1", n)
 		}
+		if n > longest {
+			return nil, fmt.Errorf("fluctuation test: no record has %d events (the longest has %d)", n, longest)
+		}
+	}
+	fhat := EffectiveAffinity(d, fw, bw, AffinityOptions{Level: opt.Level})
+	out := make([]Fluctuation, 0, len(ns))
+	for _, n := range ns {
 		raw, post := fluctCountBlocks(d, fw, n, opt.BlockEvents)
 		res := Fluctuation{N: n, F: fhat}
 		res.Raw = fluctSymmetry("count-stopped", raw, n, 0, opt, 1)
@@ -305,9 +314,13 @@ func fluctCountBlocks(d *likelihood.Data, fw uint8, n, minEvents int) (raw, post
 		nw := len(lab) / n
 		nb := max(1, (nw+per-1)/per)
 		for b := 0; b < nb; b++ {
-			rb := fluctBlock{count: make([]int64, width)}
-			pb := fluctBlock{count: make([]int64, width)}
+			// A block without windows (a record shorter than n) keeps
+			// only its pairs: no count slice of 2n+1 entries.
+			var rb, pb fluctBlock
 			w0, w1 := b*per, min(nw, (b+1)*per)
+			if w1 > w0 {
+				rb.count, pb.count = make([]int64, width), make([]int64, width)
+			}
 			for w := w0; w < w1; w++ {
 				win := lab[w*n : (w+1)*n]
 				c := 0
@@ -612,7 +625,7 @@ func fluctCompare(blocks []fluctBlock, slope, seSlope float64, pairs [2][2]int64
 	}
 	if len(blocks) >= minBootBlocks && opt.Boot > 0 {
 		rng := rand.New(rand.NewPCG(opt.Seed, 0x5eed0f1c7+stream))
-		sum := make([]int64, len(blocks[0].count))
+		sum := make([]int64, 2*offset+1)
 		var ds, ss, fs []float64
 		for range opt.Boot {
 			clear(sum)

@@ -105,27 +105,62 @@ func independenceG(tab [][]float64) (g float64, df int) {
 }
 
 // homogeneityG tests that groups share the conditional law P(l'|l): for
-// each l it forms the table groups x next label of counts N_g[l][l'] and
-// sums the G statistics and degrees of freedom of independenceG over l.
-func homogeneityG(groups [][][]int) (g float64, df, n int) {
-	if len(groups) == 0 {
-		return 0, 0, 0
+// each l, the independence G test of the groups x next-label table of
+// counts n_g[l][l'], summed over l (Anderson and Goodman 1957). counts
+// holds the groups one after another, each a k x k table row by row
+// (counts[(g k + l) k + l']); rows is scratch space, grown as needed. It
+// also returns the number of pairs.
+func homogeneityG(counts []int, k int, rows []float64) (g float64, df, n int, _ []float64) {
+	if k == 0 || len(counts) == 0 {
+		return 0, 0, 0, rows
 	}
-	k := len(groups[0])
+	groups := len(counts) / (k * k)
+	if cap(rows) < groups {
+		rows = make([]float64, groups)
+	}
+	rows = rows[:groups]
+	cols := make([]float64, k)
 	for l := 0; l < k; l++ {
-		tab := make([][]float64, len(groups))
-		for gi, c := range groups {
-			tab[gi] = make([]float64, k)
-			for b := 0; b < k; b++ {
-				tab[gi][b] = float64(c[l][b])
-				n += c[l][b]
+		clear(cols)
+		tot := 0.0
+		for gi := range groups {
+			row := counts[(gi*k+l)*k : (gi*k+l+1)*k]
+			s := 0
+			for b, v := range row {
+				s += v
+				cols[b] += float64(v)
+			}
+			rows[gi] = float64(s)
+			tot += float64(s)
+		}
+		if tot == 0 {
+			continue
+		}
+		n += int(tot)
+		gl := 0.0
+		nr, nc := 0, 0
+		for gi := range groups {
+			if rows[gi] == 0 {
+				continue
+			}
+			nr++
+			row := counts[(gi*k+l)*k : (gi*k+l+1)*k]
+			for b, v := range row {
+				if v > 0 {
+					x := float64(v)
+					gl += x * math.Log(x*tot/(rows[gi]*cols[b]))
+				}
 			}
 		}
-		gl, dl := independenceG(tab)
-		g += gl
-		df += dl
+		for _, v := range cols {
+			if v > 0 {
+				nc++
+			}
+		}
+		g += math.Max(0, 2*gl)
+		df += max(0, (nr-1)*(nc-1))
 	}
-	return g, df, n
+	return g, df, n, rows
 }
 
 // RecordStationarity compares the first and second half of one record.
@@ -168,34 +203,40 @@ type Stationarity struct {
 // counts as multinomial given the visits (Anderson and Goodman 1957).
 func StationarityTest(d *likelihood.Data) Stationarity {
 	k := len(d.Labels)
+	kk := k * k
 	var s Stationarity
-	var gm, gv []float64 // per record, mean gap and the variance of that mean
-	var gn, gc []int     // per record, batches and gaps
-	var all [][][]int
+	nr := len(d.Records)
+	s.Records = make([]RecordStationarity, 0, nr)
+	// Per record: mean gap, the variance of that mean, batches, gaps.
+	gm, gv := make([]float64, 0, nr), make([]float64, 0, nr)
+	gn, gc := make([]int, 0, nr), make([]int, 0, nr)
+	all := make([]int, nr*kk)   // per record, its pair counts (flat)
+	halves := make([]int, 2*kk) // the two halves of one record
+	var gaps, rows []float64    // reused for every record
 	for i := range d.Records {
 		r := &d.Records[i]
 		rs := RecordStationarity{ID: r.ID}
 		n := r.Len()
 		half := n / 2 // pairs ending at events 1..half form the first half
-		c1 := make([][]int, k)
-		c2 := make([][]int, k)
-		for a := range c1 {
-			c1[a] = make([]int, k)
-			c2[a] = make([]int, k)
-		}
-		gaps := make([]float64, max(0, n-1))
+		clear(halves)
+		own := all[i*kk : (i+1)*kk]
+		gaps = gaps[:0]
 		for j := 1; j < n; j++ {
-			gaps[j-1] = r.Time[j] - r.Time[j-1]
+			gaps = append(gaps, r.Time[j]-r.Time[j-1])
+			ab := int(r.Label[j-1])*k + int(r.Label[j])
+			own[ab]++
 			if j <= half {
-				c1[r.Label[j-1]][r.Label[j]]++
+				halves[ab]++
 			} else {
-				c2[r.Label[j-1]][r.Label[j]]++
+				halves[kk+ab]++
 			}
 		}
 		h := min(half, len(gaps)) // gaps 0..h-1 end at events 1..half
 		m1, v1, b1 := batchMeans(gaps[:h])
 		m2, v2, b2 := batchMeans(gaps[h:])
-		g, df, np := homogeneityG([][][]int{c1, c2})
+		var g float64
+		var df, np int
+		g, df, np, rows = homogeneityG(halves, k, rows)
 		rs.Next = TestResult{Stat: g, DF: df, P: chiSquareSF(g, df), N: np}
 		rs.MeanFirst, rs.MeanSecond = m1, m2
 		rs.MeanGap = TestResult{N: len(gaps), DF: 1}
@@ -225,7 +266,6 @@ func StationarityTest(d *likelihood.Data) Stationarity {
 			s.HalvesGap.DF++
 			s.HalvesGap.N += rs.MeanGap.N
 		}
-		all = append(all, RecordTransitionCounts(r, k))
 		m, v, nb := batchMeans(gaps)
 		gm, gv, gn, gc = append(gm, m), append(gv, v), append(gn, nb), append(gc, len(gaps))
 	}
@@ -243,7 +283,7 @@ func StationarityTest(d *likelihood.Data) Stationarity {
 		s.BetweenGap = TestResult{Stat: math.NaN(), P: math.NaN(), Note: note}
 		return s
 	}
-	g, df, np := homogeneityG(all)
+	g, df, np, _ := homogeneityG(all, k, rows)
 	s.BetweenNext = TestResult{Stat: g, DF: df, P: chiSquareSF(g, df), N: np}
 	if df == 0 {
 		s.BetweenNext.P = math.NaN()

@@ -122,3 +122,41 @@ func TestZeroGapLocated(t *testing.T) {
 		t.Error("Locate changed an unrelated error")
 	}
 }
+
+// TestReadLimits: UTF-16 text, overlong labels, states, record IDs and
+// lines are refused with the limit said, and no message repeats more than
+// 40 bytes of the input.
+func TestReadLimits(t *testing.T) {
+	utf16 := func(s string) string {
+		b := []byte{0xff, 0xfe}
+		for _, c := range []byte(s) {
+			b = append(b, c, 0)
+		}
+		return string(b)
+	}
+	long := strings.Repeat("x", 50000)
+	cases := []struct{ name, text, want string }{
+		{"UTF-16 LE", utf16("time,label\n1,+\n"), "x.csv:1: UTF-16 text"},
+		{"UTF-16 without BOM", utf16("time,label\n1,+\n")[2:], "x.csv:1: UTF-16 text"},
+		{"long label", "time,label\n1," + long + "\n", "x.csv:2:3: label: \"xxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxx\"... (50000 bytes) is longer than 100 bytes"},
+		{"long state", "time,state\n1," + long + "\n", "is longer than 100 bytes, the limit of a state name"},
+		{"long record ID", "record,time,label\n" + long + ",1,+\n", "is longer than 256 bytes"},
+		{"long line", "time,label\n1,+\n#" + strings.Repeat("y", 2<<20) + "\n", "x.csv:3: line longer than 1048576 bytes"},
+		{"long time", "time,label\n1" + long + ",+\n", "time: \"1xxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxxx\"... (50001 bytes) is not a number"},
+		{"long unknown label", "time,label\n1,+\n2," + strings.Repeat("é", 50) + "\n", "(100 bytes)"},
+	}
+	for _, c := range cases {
+		opt := ReadOptions{}
+		if c.name == "long unknown label" {
+			opt.Known = []string{"+", "-"}
+		}
+		_, _, err := ReadRecords(strings.NewReader(c.text), "x.csv", opt)
+		if err == nil || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("%s: %v, want %q", c.name, err, c.want)
+			continue
+		}
+		if len(err.Error()) > 400 {
+			t.Errorf("%s: message of %d bytes", c.name, len(err.Error()))
+		}
+	}
+}

@@ -41,7 +41,7 @@ func (p *parser) header() error {
 		p.rep.Columns = append(p.rep.Columns, name)
 		key := strings.ToLower(name)
 		if j, ok := seen[key]; ok && key != "" {
-			return p.errAt(p.col(i), "", "column %q repeats column %d", name, j+1)
+			return p.errAt(p.col(i), "", "column %s repeats column %d", clip(name), j+1)
 		}
 		seen[key] = i
 		switch key {
@@ -65,7 +65,7 @@ func (p *parser) header() error {
 				return p.errAt(0, "", "missing column %q: the file's lines end with a carriage return only (old Mac format); convert the line endings to LF or CRLF", name)
 			}
 		}
-		return p.errAt(0, "", "missing column %q (header has %s)", name, strings.Join(p.rep.Columns, ", "))
+		return p.errAt(0, "", "missing column %q (header has %s)", name, clipList(p.rep.Columns))
 	}
 	if p.colTime < 0 {
 		return missing("time")
@@ -94,7 +94,7 @@ func (p *parser) header() error {
 		p.fixed = true
 		for _, l := range p.opt.Known {
 			if _, dup := p.modelIdx[l]; dup {
-				return fmt.Errorf("%s: known label %q given twice", p.file, l)
+				return fmt.Errorf("%s: known label %s given twice", p.file, clip(l))
 			}
 			if l == EndLabel {
 				return fmt.Errorf("%s: %q is reserved for end rows and cannot be a label", p.file, l)

@@ -55,17 +55,19 @@ type parser struct {
 	hinted bool
 	last   []labelCache
 
-	cur      *likelihood.Record
-	curRep   *RecordReport
-	curID    string
-	ended    bool // an end row closed the current record
-	endLine  int
-	lastLine int // line of the last event row
-	state    string
-	stateSet bool
-	lastT    float64 // time of the last row (trace) or event
-	lastText []byte  // the time field of the last row
-	haveT    bool
+	cur       *likelihood.Record // &curVal while a record is open, else nil
+	curVal    likelihood.Record
+	curRepVal RecordReport
+	curRep    *RecordReport
+	curID     string
+	ended     bool // an end row closed the current record
+	endLine   int
+	lastLine  int // line of the last event row
+	state     string
+	stateSet  bool
+	lastT     float64 // time of the last row (trace) or event
+	lastText  []byte  // the time field of the last row
+	haveT     bool
 }
 
 func newParser(r io.Reader, file string, opt ReadOptions) *parser {
@@ -96,6 +98,9 @@ func (p *parser) next() error {
 		for err == bufio.ErrBufferFull {
 			b, err = p.br.ReadSlice('\n')
 			p.long = append(p.long, b...)
+			if len(p.long) > MaxLineBytes {
+				return &ReadError{File: p.file, Line: p.lineNo + 1, Msg: fmt.Sprintf("line longer than %d bytes: not a records file", MaxLineBytes)}
+			}
 		}
 		b = p.long
 	}
@@ -109,6 +114,9 @@ func (p *parser) next() error {
 	p.rep.Lines++
 	p.bytes += int64(len(b))
 	if p.lineNo == 1 {
+		if bytes.HasPrefix(b, []byte("\xff\xfe")) || bytes.HasPrefix(b, []byte("\xfe\xff")) || bytes.IndexByte(b, 0) >= 0 {
+			return &ReadError{File: p.file, Line: 1, Msg: "UTF-16 text (or binary data): save the file as UTF-8"}
+		}
 		b = bytes.TrimPrefix(b, []byte("\xef\xbb\xbf"))
 	}
 	if n := len(b); n > 0 && b[n-1] == '\n' {

@@ -79,12 +79,12 @@ func (p *parser) lookup(name []byte, col int) (uint8, error) {
 		fieldName = "state"
 	}
 	if model == "" {
-		return 0, p.errAt(col, fieldName, "label %q is renamed to an empty label", file)
+		return 0, p.errAt(col, fieldName, "label %s is renamed to an empty label", clip(file))
 	}
 	i, ok := p.modelIdx[model]
 	if !ok {
 		if p.fixed {
-			return 0, p.errAt(col, fieldName, "unknown label %q (known: %s)", file, strings.Join(p.opt.Known, ", "))
+			return 0, p.errAt(col, fieldName, "unknown label %s (known: %s)", clip(file), clipList(p.opt.Known))
 		}
 		if model == EndLabel {
 			return 0, p.errAt(col, fieldName, "%q is reserved for end rows and cannot be a label", model)
@@ -112,7 +112,7 @@ func (p *parser) closeRecord() error {
 		if p.rep.Trace {
 			what = fmt.Sprintf("no change of state in %d samples", p.curRep.Rows)
 		}
-		return &ReadError{File: p.file, Line: p.curRep.FirstLine, Msg: fmt.Sprintf("record %q is empty: %s", p.curID, what)}
+		return &ReadError{File: p.file, Line: p.curRep.FirstLine, Msg: fmt.Sprintf("record %s is empty: %s", clip(p.curID), what)}
 	}
 	if p.rep.Trace {
 		p.cur.End = p.lastT
@@ -158,9 +158,12 @@ func (p *parser) row() error {
 			return p.errAt(p.col(p.colRecord), "record", "empty record name (the file has a record column, so every row needs one)")
 		}
 		if p.cur == nil || string(id) != p.curID {
+			if len(id) > MaxRecordIDBytes {
+				return p.errAt(p.col(p.colRecord), "record", "record name %s is longer than %d bytes", clip(id), MaxRecordIDBytes)
+			}
 			sid := string(id)
 			if last, ok := p.seenIDs[sid]; ok {
-				return p.errAt(p.col(p.colRecord), "record", "record %q reappears after other records (its rows ended on line %d); rows of a record must be contiguous", sid, last)
+				return p.errAt(p.col(p.colRecord), "record", "record %s reappears after other records (its rows ended on line %d); rows of a record must be contiguous", clip(sid), last)
 			}
 			if err := p.closeRecord(); err != nil {
 				return err
@@ -174,7 +177,7 @@ func (p *parser) row() error {
 		p.open("")
 	}
 	if p.ended {
-		return p.errAt(0, "", "row after the end of record %q (end row on line %d)", p.curID, p.endLine)
+		return p.errAt(0, "", "row after the end of record %s (end row on line %d)", clip(p.curID), p.endLine)
 	}
 	// Time.
 	tf := p.field(p.colTime)
@@ -187,19 +190,19 @@ func (p *parser) row() error {
 		// "1_000", hexadecimal floats and "Inf" spellings, which no
 		// instrument writes and which hide a damaged file.
 		if i := bytes.IndexFunc(tf, func(r rune) bool { return !strings.ContainsRune("0123456789+-.eE", r) }); i >= 0 && !isNaNOrInf(tf) {
-			return p.errAt(p.col(p.colTime), "time", "%q is not a number in decimal notation", tf)
+			return p.errAt(p.col(p.colTime), "time", "%s is not a number in decimal notation", clip(tf))
 		}
 		var err error
 		t, err = strconv.ParseFloat(string(tf), 64)
 		if err != nil {
 			var ne *strconv.NumError
 			if errors.As(err, &ne) && ne.Err == strconv.ErrRange {
-				return p.errAt(p.col(p.colTime), "time", "%q is out of range", tf)
+				return p.errAt(p.col(p.colTime), "time", "%s is out of range", clip(tf))
 			}
-			return p.errAt(p.col(p.colTime), "time", "%q is not a number", tf)
+			return p.errAt(p.col(p.colTime), "time", "%s is not a number", clip(tf))
 		}
 		if math.IsNaN(t) || math.IsInf(t, 0) {
-			return p.errAt(p.col(p.colTime), "time", "%q is not a finite number", tf)
+			return p.errAt(p.col(p.colTime), "time", "%s is not a finite number", clip(tf))
 		}
 	}
 	if t == 0 {
@@ -209,21 +212,21 @@ func (p *parser) row() error {
 			mant = tf[:i]
 		}
 		if bytes.ContainsAny(mant, "123456789") {
-			return p.errAt(p.col(p.colTime), "time", "%q underflows to 0", tf)
+			return p.errAt(p.col(p.colTime), "time", "%s underflows to 0", clip(tf))
 		}
 	}
 	if msg := checkTime(t); msg != "" {
-		return p.errAt(p.col(p.colTime), "time", "%q %s", tf, msg)
+		return p.errAt(p.col(p.colTime), "time", "%s %s", clip(tf), msg)
 	}
 	if p.haveT {
 		if t < p.lastT {
-			return p.errAt(p.col(p.colTime), "time", "%v is earlier than the previous time %v (line %d) in record %q: times must not decrease within a record", t, p.lastT, p.lastLine, p.curID)
+			return p.errAt(p.col(p.colTime), "time", "%v is earlier than the previous time %v (line %d) in record %s: times must not decrease within a record", t, p.lastT, p.lastLine, clip(p.curID))
 		}
 		if msg := checkGap(t - p.lastT); msg != "" {
-			return p.errAt(p.col(p.colTime), "time", "%q: the gap %v to the previous time (line %d) %s", tf, t-p.lastT, p.lastLine, msg)
+			return p.errAt(p.col(p.colTime), "time", "%s: the gap %v to the previous time (line %d) %s", clip(tf), t-p.lastT, p.lastLine, msg)
 		}
 		if t == p.lastT && !sameDecimal(tf, p.lastText) {
-			return p.errAt(p.col(p.colTime), "time", "%q and %q (line %d) are different numbers but the same float64 (%v): the times carry more significant digits than a float64 holds (about 15); subtract an offset so that times start near 0", tf, p.lastText, p.lastLine, t)
+			return p.errAt(p.col(p.colTime), "time", "%s and %s (line %d) are different numbers but the same float64 (%v): the times carry more significant digits than a float64 holds (about 15); subtract an offset so that times start near 0", clip(tf), clip(p.lastText), p.lastLine, t)
 		}
 	}
 	p.lastText = append(p.lastText[:0], tf...)
@@ -236,12 +239,15 @@ func (p *parser) row() error {
 	if len(lf) == 0 {
 		return p.errAt(p.col(p.colLabel), "label", "empty")
 	}
+	if len(lf) > MaxLabelBytes {
+		return p.errAt(p.col(p.colLabel), "label", "%s is longer than %d bytes, the limit of a label", clip(lf), MaxLabelBytes)
+	}
 	if i := bytes.IndexFunc(lf, isControl); i >= 0 {
-		return p.errAt(p.col(p.colLabel)+i, "label", "%q contains a control character", lf)
+		return p.errAt(p.col(p.colLabel)+i, "label", "%s contains a control character", clip(lf))
 	}
 	if string(lf) == EndLabel {
 		if p.curLen() == 0 {
-			return p.errAt(p.col(p.colLabel), "label", "end row before any event of record %q", p.curID)
+			return p.errAt(p.col(p.colLabel), "label", "end row before any event of record %s", clip(p.curID))
 		}
 		p.cur.End = t
 		p.curRep.End = true
@@ -261,9 +267,12 @@ func (p *parser) row() error {
 }
 
 func (p *parser) open(id string) {
-	p.cur = &likelihood.Record{ID: id, End: math.NaN()}
+	// The open record lives in the parser (no allocation per record).
+	p.curVal = likelihood.Record{ID: id, End: math.NaN()}
+	p.cur = &p.curVal
 	p.start = len(p.times)
-	p.curRep = &RecordReport{ID: id, FirstLine: p.lineNo}
+	p.curRepVal = RecordReport{ID: id, FirstLine: p.lineNo}
+	p.curRep = &p.curRepVal
 	p.curID = id
 	p.ended = false
 	p.haveT = false
@@ -311,8 +320,11 @@ func (p *parser) traceRow(t float64) error {
 	if len(sf) == 0 {
 		return p.errAt(p.col(p.colState), "state", "empty")
 	}
+	if len(sf) > MaxLabelBytes {
+		return p.errAt(p.col(p.colState), "state", "%s is longer than %d bytes, the limit of a state name", clip(sf), MaxLabelBytes)
+	}
 	if i := bytes.IndexFunc(sf, isControl); i >= 0 {
-		return p.errAt(p.col(p.colState)+i, "state", "%q contains a control character", sf)
+		return p.errAt(p.col(p.colState)+i, "state", "%s contains a control character", clip(sf))
 	}
 	p.lastT, p.haveT, p.lastLine = t, true, p.lineNo
 	if p.stateSet && string(sf) == p.state {

@@ -269,18 +269,31 @@ func labelRates(recs []likelihood.Record, k int, duration float64, after []int, 
 		dur float64
 		n   []float64
 	}
-	var blocks []block
+	// Blocks as currentBlocks cuts them; beyond maxJackGroups, consecutive
+	// blocks are summed into that many groups (block i of B into group
+	// i*G/B), so many short records do not make one unit each.
+	raw := 0
+	for i := range recs {
+		raw += recordBlocks(&recs[i], tmax)
+	}
+	G := min(raw, maxJackGroups)
+	blocks := make([]block, G)
+	for g := range blocks {
+		blocks[g].n = make([]float64, k)
+	}
+	bi := 0
 	for i := range recs {
 		r := &recs[i]
 		t0, t1 := fluctSpan(r)
-		nb := max(1, int(math.Ceil((t1-t0)/tmax)))
+		nb := recordBlocks(r, tmax)
 		k0 := 1
 		for b := 0; b < nb; b++ {
 			be := math.Min(t0+float64(b+1)*tmax, t1)
 			if b == nb-1 {
 				be = t1
 			}
-			blk := block{dur: be - (t0 + float64(b)*tmax), n: make([]float64, k)}
+			blk := &blocks[bi*G/raw]
+			blk.dur += be - (t0 + float64(b)*tmax)
 			k1 := len(r.Time)
 			if b < nb-1 {
 				k1 = searchAfter(r.Time, k0, len(r.Time), be)
@@ -289,10 +302,13 @@ func labelRates(recs []likelihood.Record, k int, duration float64, after []int, 
 				blk.n[l]++
 			}
 			k0 = k1
-			blocks = append(blocks, blk)
+			bi++
 		}
 	}
 	method := fmt.Sprintf("delete-one-block jackknife, %d blocks of %.4g time units, Student t on %d df, log scale", len(blocks), tmax, len(blocks)-1)
+	if raw > G {
+		method = fmt.Sprintf("delete-one-group jackknife, %d groups of consecutive blocks (%d blocks of at most %.4g time units), Student t on %d df, log scale", G, raw, tmax, G-1)
+	}
 	for l := range out {
 		n := float64(after[l])
 		var reps []float64

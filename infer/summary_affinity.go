@@ -77,7 +77,11 @@ type AffinityOptions struct {
 	// Bootstrap > 0 asks for that many bootstrap resamples: over records
 	// when there are at least MinRecords of them, else over Blocks
 	// contiguous blocks of event pairs. The interval is then the percentile
-	// interval and SE the spread of the finite resampled values.
+	// interval and SE the spread of the finite resampled values. Beyond
+	// maxRecordUnits records, consecutive records are resampled in that
+	// many groups (whole records each, so the same independence between
+	// records is assumed), which keeps the cost O(records + Bootstrap x
+	// maxRecordUnits) instead of O(Bootstrap x records).
 	Bootstrap  int
 	Blocks     int    // blocks for the block bootstrap; 0 means 200
 	MinRecords int    // records needed to resample records; 0 means 50
@@ -143,7 +147,7 @@ func EffectiveAffinity(d *likelihood.Data, plus, minus uint8, opt ...AffinityOpt
 	}
 	e := affinityFromCounts(c, o.Level)
 	if o.Bootstrap > 0 && !math.IsNaN(e.Value) && !math.IsInf(e.Value, 0) {
-		bootstrapAffinity(&e, units, o, len(d.Records) >= o.MinRecords)
+		bootstrapAffinity(&e, units, o, len(d.Records) >= o.MinRecords, len(d.Records) > maxRecordUnits)
 	}
 	return e
 }
@@ -172,9 +176,11 @@ func affinityUnits(d *likelihood.Data, plus, minus uint8, o AffinityOptions) []a
 		return c
 	}
 	if o.Bootstrap <= 0 || len(d.Records) >= o.MinRecords {
-		units := make([]affinityCounts, len(d.Records))
+		nr := len(d.Records)
+		g := min(nr, maxRecordUnits)
+		units := make([]affinityCounts, g)
 		for i := range d.Records {
-			units[i] = count(d.Records[i].Label)
+			units[i*g/nr].add(count(d.Records[i].Label))
 		}
 		return units
 	}
@@ -198,6 +204,9 @@ func affinityUnits(d *likelihood.Data, plus, minus uint8, o AffinityOptions) []a
 	}
 	return units
 }
+
+// maxRecordUnits is the most resampling units of a bootstrap over records.
+const maxRecordUnits = 2000
 
 // affinityFromCounts is the plug-in F with its delta-method interval, or the
 // one-sided bound when a pair was never seen.
@@ -236,7 +245,7 @@ func affinityFromCounts(c affinityCounts, level float64) Estimate {
 }
 
 // bootstrapAffinity replaces e's SE and interval by bootstrap ones.
-func bootstrapAffinity(e *Estimate, units []affinityCounts, o AffinityOptions, overRecords bool) {
+func bootstrapAffinity(e *Estimate, units []affinityCounts, o AffinityOptions, overRecords, grouped bool) {
 	if len(units) < 2 {
 		e.Note = joinNote(e.Note, "bootstrap skipped: fewer than two resampling units")
 		return
@@ -286,6 +295,9 @@ func bootstrapAffinity(e *Estimate, units []affinityCounts, o AffinityOptions, o
 	_, v := meanVar(finite)
 	e.SE = math.Sqrt(v)
 	unit := fmt.Sprintf("%d records", len(units))
+	if overRecords && grouped {
+		unit = fmt.Sprintf("%d groups of consecutive records", len(units))
+	}
 	if !overRecords {
 		unit = fmt.Sprintf("%d contiguous blocks of event pairs", len(units))
 	}

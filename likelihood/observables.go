@@ -281,8 +281,33 @@ func (p *Predictor) Reverse(l int) int { return p.rev[l] }
 // two-state network). The formula is evaluated for any two labels; its
 // meaning as an affinity needs them to be each other's reverse. It panics if
 // plus or minus is not a label index.
+//
+// F is a ratio of sums of products of rates, so a network with rates of
+// 1e300 and 1e-300 has a finite F whose P(minus|minus) underflows. When
+// every label sits on one directed edge and there is no dead time, both
+// probabilities are computed in log space (logTransition), which gives F
+// to full relative accuracy over the whole float64 range of rates.
+// Otherwise F comes from Transition, and a probability that is 0 there but
+// positive in exact arithmetic (a path exists) makes F NaN: not computable
+// in float64, never an infinite value standing for a finite one.
 func (p *Predictor) EffectiveAffinity(plus, minus int) float64 {
+	if la, ok := p.logTransition(plus, plus); ok {
+		lb, _ := p.logTransition(minus, minus)
+		inf := math.Inf(-1)
+		switch {
+		case la == inf && lb == inf:
+			return math.NaN()
+		case lb == inf:
+			return math.Inf(1)
+		case la == inf:
+			return math.Inf(-1)
+		}
+		return la - lb
+	}
 	a, b := p.p[plus][plus], p.p[minus][minus]
+	if (a == 0 && p.canFollow(plus, plus)) || (b == 0 && p.canFollow(minus, minus)) {
+		return math.NaN()
+	}
 	switch {
 	case a == 0 && b == 0:
 		return math.NaN()

@@ -3,10 +3,12 @@ package models
 import (
 	"bufio"
 	"math"
+	"math/big"
 	"math/rand/v2"
 	"os"
 	"path/filepath"
 	"strconv"
+	"strings"
 	"testing"
 )
 
@@ -250,5 +252,112 @@ func BenchmarkProperties10(b *testing.B) {
 			net.Affinity(c)
 		}
 		net.EntropyProduction(pi)
+	}
+}
+
+// TestSimulatorClock: on a stiff ring (rates 1e-6 .. 1e6, clock values up
+// to ~1e11 where the float64 spacing is ~1e-5, far above the fast holding
+// times of ~1e-6) every recorded time lies within one float64 spacing of
+// the exact sum of the holding times drawn so far, computed here in
+// 400-bit arithmetic (math/big) from a replay of the random stream. A
+// plain float64 sum, checked the same way, drifts by many spacings (it
+// drops every holding time below half a spacing), so the test can fail.
+func TestSimulatorClock(t *testing.T) {
+	net := ring([]float64{1e6, 1e5, 1e-6, 1e6, 1e5, 1e-6}, []float64{1e5, 1e6, 1e-6, 1e5, 1e6, 1e-6})
+	net.Labels = []Label{{Name: "+", Detect: 1}, {Name: "-", Detect: 1}}
+	net.Edges[0].Label = [2]int{0, 1}
+	sim, err := NewSimulator(net, 9)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ev, _ := sim.Visible(20000, nil)
+	if err := sim.Err(); err != nil {
+		t.Fatal(err)
+	}
+	// Replay: same seed, same draws in the same order.
+	rng := rand.New(rand.NewPCG(9, 0x9e3779b97f4a7c15))
+	exact := new(big.Float).SetPrec(400)
+	naive, naiveBad, state, k := 0.0, 0, 0, 0
+	for k < len(ev) {
+		dt := rng.ExpFloat64() / sim.exit[state]
+		exact.Add(exact, new(big.Float).SetPrec(400).SetFloat64(dt))
+		naive += dt
+		jumps := sim.out[state]
+		u := rng.Float64()
+		j := 0
+		for j < len(jumps)-1 && u >= jumps[j].cum {
+			j++
+		}
+		state = jumps[j].to
+		if jumps[j].label == Hidden {
+			continue
+		}
+		want, _ := exact.Float64()
+		ulp := math.Nextafter(want, math.Inf(1)) - want
+		if math.Abs(ev[k].Time-want) > ulp {
+			t.Fatalf("event %d: time %.17g, exact sum %.17g (%.3g spacings)", k, ev[k].Time, want, math.Abs(ev[k].Time-want)/ulp)
+		}
+		if math.Abs(naive-want) > ulp {
+			naiveBad++
+		}
+		k++
+	}
+	if naiveBad == 0 || ev[len(ev)-1].Time < 1e9 {
+		t.Fatalf("a plain sum was never off by a spacing (%d events): test too weak", naiveBad)
+	}
+	t.Logf("last time %.4g; a plain float64 sum was off by more than a spacing at %d of %d events", ev[len(ev)-1].Time, naiveBad, len(ev))
+}
+
+// TestSimulatorBounded: instruments and networks that would make Visible
+// loop without end, or write times outside the float64 range, are refused
+// with an error instead.
+func TestSimulatorBounded(t *testing.T) {
+	net := ring([]float64{2, 3, 1}, []float64{1, 1, 1})
+	net.Labels = []Label{{Name: "+", Detect: 1}, {Name: "-", Detect: 1}}
+	net.Edges[0].Label = [2]int{0, 1}
+	s, _ := NewSimulator(net, 1)
+	if err := s.SetDeadTime(1e300); err == nil || !strings.Contains(err.Error(), "no event would be recorded") {
+		t.Errorf("dead time 1e300: %v", err)
+	}
+	if err := s.SetFrame(1e-310); err == nil || !strings.Contains(err.Error(), "below the smallest normal") {
+		t.Errorf("frame 1e-310: %v", err)
+	}
+	if err := s.SetFrame(1e-300); err != nil {
+		t.Fatal(err)
+	}
+	s.StartStationary()
+	if ev, _ := s.Visible(10, nil); len(ev) != 0 || s.Err() == nil || !strings.Contains(s.Err().Error(), "beyond 2^53") {
+		t.Errorf("frame 1e-300: %d events, %v", len(ev), s.Err())
+	}
+	// No labelled transition: refused before any jump.
+	hidden := net.Clone()
+	hidden.Edges[0].Label = [2]int{Hidden, Hidden}
+	h, err := NewSimulator(hidden, 1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if ev, jumps := h.Visible(5, nil); len(ev) != 0 || jumps != 0 || h.Err() == nil {
+		t.Errorf("no detection: %d events, %d jumps, %v", len(ev), jumps, h.Err())
+	}
+	// Rates of 1e-306: holding times of ~1e306 overflow the clock within
+	// a few hundred jumps.
+	slow := ring([]float64{1e-306, 1e-306, 1e-306}, []float64{1e-306, 1e-306, 1e-306})
+	slow.Labels = []Label{{Name: "+", Detect: 1}}
+	slow.Edges[0].Label = [2]int{0, Hidden}
+	o, err := NewSimulator(slow, 1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ev, _ := o.Visible(1000, nil)
+	if o.Err() == nil || !strings.Contains(o.Err().Error(), "float64 range") || len(ev) >= 1000 {
+		t.Errorf("clock overflow: %d events, %v", len(ev), o.Err())
+	}
+	for _, e := range ev {
+		if math.IsInf(e.Time, 0) {
+			t.Fatal("an infinite time was recorded")
+		}
+	}
+	if again, jumps := o.Visible(1, nil); len(again) != 0 || jumps != 0 {
+		t.Error("Visible ran after an error")
 	}
 }

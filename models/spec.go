@@ -176,9 +176,12 @@ type rawLabel struct {
 // spec (affinity constraints, strong connectivity) run once the rest is
 // clean.
 func Parse(r io.Reader, file string) (*Model, error) {
-	src, err := io.ReadAll(r)
+	src, err := io.ReadAll(io.LimitReader(r, MaxSpecBytes+1))
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", file, err)
+	}
+	if err := checkSpecText(src, file); err != nil {
+		return nil, err
 	}
 	var doc map[string]any
 	if _, err := toml.NewDecoder(bytes.NewReader(src)).Decode(&doc); err != nil {
@@ -189,6 +192,9 @@ func Parse(r io.Reader, file string) (*Model, error) {
 		return nil, &SpecError{File: file, Msg: err.Error()}
 	}
 	loc := locate(src)
+	if err := checkSpecNames(doc, file, loc); err != nil {
+		return nil, err
+	}
 	var errs []error
 	bad := func(key, format string, a ...any) {
 		errs = append(errs, &SpecError{File: file, Line: loc.line(key), Key: key, Msg: fmt.Sprintf(format, a...)})

@@ -163,7 +163,7 @@ func cmdFluct(args []string, stdout, stderr io.Writer) int {
 	res, err := infer.FluctuationTest(d, ns, infer.FluctOptions{Labels: edge, Level: *level, Boot: *boot, Seed: *seed, FixedTime: *fixed})
 	stop()
 	if err != nil {
-		return c.fail(1, err)
+		return c.fail(1, fmt.Errorf("%s: %w", in.name, err))
 	}
 	r := c.newReport([]output.Input{in.input()}, output.SeedOf(*seed), unit)
 	r.Notes = nonEmpty(edgeNote, unitNote, deadNote)
