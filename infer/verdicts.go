@@ -27,8 +27,11 @@ type Consistency struct {
 	MarkovRuledOut bool // the labels are not first-order Markov and each of the model's labels sits on one directed edge
 	ShapeConstant  bool // the fitted psi(++)/psi(--) is constant in t
 	SingleEdge     bool // each label of the model sits on one directed edge
-	// Model quantities at the maximum.
+	// Model quantities at the maximum; SigmaSE is sigma's delta-method
+	// standard error (NaN when it could not be computed, +Inf when sigma
+	// moves along a direction the data do not determine).
 	F, Sigma, J float64
+	SigmaSE     float64
 	GOF         *Goodness
 	Reasons     []string // why the candidate is ruled out; empty when consistent
 }
@@ -83,10 +86,17 @@ func CheckConsistency(fit *FitResult, d *likelihood.Data, ev *Evidence, o Consis
 	if err != nil {
 		return nil, err
 	}
-	c := &Consistency{F: math.NaN(), Sigma: math.NaN(), J: math.NaN()}
+	c := &Consistency{F: math.NaN(), Sigma: math.NaN(), J: math.NaN(), SigmaSE: math.NaN()}
 	pi, err := net.Stationary()
 	if err == nil {
 		c.Sigma = net.EntropyProduction(pi)
+	}
+	if der, err := DerivedQuantities(fit, DerivedOptions{Instrument: o.Likelihood.Instrument, Level: o.Level}); err == nil {
+		for _, q := range der {
+			if q.Name == "sigma" {
+				c.SigmaSE = q.SE
+			}
+		}
 	}
 	plus, minus := net.LabelIndex(ev.Plus), net.LabelIndex(ev.Minus)
 	c.SingleEdge = true
@@ -138,10 +148,24 @@ func CheckConsistency(fit *FitResult, d *likelihood.Data, ev *Evidence, o Consis
 				P: distuv.ChiSquared{K: float64(df)}.Survival(g), Note: "G-test on non-overlapping windows, tails pooled to expected counts >= 5"})
 		}
 		// Sigma against the valid bound: one-sided, the bound's estimate
-		// minus sigma over the bound's standard error.
+		// minus sigma over the combined standard error of the two (both
+		// are estimated from the same records; treating them as
+		// independent is conservative when they are positively
+		// correlated, as a fitted sigma and a bound of the same data are).
 		if name, b, ok := ev.Bound(); ok && !math.IsNaN(c.Sigma) && b.SE > 0 {
-			z := (b.Value - c.Sigma) / b.SE
-			c.Checks = append(c.Checks, Check{Name: "sigma against the " + name + " bound", Null: fmt.Sprintf("the model's sigma %.4g is at least the data's lower bound %s = %.4g", c.Sigma, name, b.Value), Alternative: "the model dissipates less than the data require: thermodynamically inconsistent", Stat: z, P: distuv.UnitNormal.Survival(z), Note: "one-sided z with the bound's standard error"})
+			se, note := b.SE, "one-sided z with the bound's standard error (the model's sigma has none)"
+			if s := c.SigmaSE; !math.IsNaN(s) && !math.IsInf(s, 0) {
+				se, note = math.Hypot(b.SE, s), "one-sided z with the bound's and the model's standard errors combined"
+			}
+			z := (b.Value - c.Sigma) / se
+			if math.IsInf(c.SigmaSE, 1) {
+				z, note = math.NaN(), "sigma is not determined by the data under this scheme: no test"
+			}
+			ch := Check{Name: "sigma against the " + name + " bound", Null: fmt.Sprintf("the model's sigma %.4g is at least the data's lower bound %s = %.4g", c.Sigma, name, b.Value), Alternative: "the model dissipates less than the data require: thermodynamically inconsistent", Stat: z, P: distuv.UnitNormal.Survival(z), Note: note}
+			if math.IsNaN(z) {
+				ch.P = math.NaN()
+			}
+			c.Checks = append(c.Checks, ch)
 		}
 	}
 	if o.Known != nil {
