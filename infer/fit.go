@@ -7,6 +7,7 @@ import (
 	"math"
 	"runtime"
 	"slices"
+	"strings"
 	"sync"
 
 	"edgewise/likelihood"
@@ -267,7 +268,7 @@ func Fit(m *models.Model, d *likelihood.Data, opt FitOptions) (*FitResult, error
 		if res.Interrupted {
 			return nil, fmt.Errorf("fit %s: interrupted before any start finished", m.Name)
 		}
-		return nil, fmt.Errorf("fit %s: every start failed:\n  %s", m.Name, joinLines(why))
+		return nil, fmt.Errorf("fit %s: every start failed:\n  %s", m.Name, strings.Join(why, "\n  "))
 	}
 
 	// Stage 2: refine the distinct optima on all the data.
@@ -431,17 +432,6 @@ func countNot(s []StartResult) int {
 	return n
 }
 
-func joinLines(s []string) string {
-	out := ""
-	for i, l := range s {
-		if i > 0 {
-			out += "\n  "
-		}
-		out += l
-	}
-	return out
-}
-
 // parallel runs f(0..n-1) on up to workers goroutines.
 func parallel(n, workers int, f func(i int)) {
 	if workers > n {
@@ -486,104 +476,6 @@ func (p *progress) step(stage string, total int) {
 	defer p.mu.Unlock()
 	p.done[stage]++
 	p.f(stage, p.done[stage], total)
-}
-
-// startGroup is a set of converged starts that ended at the same ln L.
-type startGroup struct {
-	members    []int
-	x          []float64
-	ll         float64
-	equivalent bool
-}
-
-// groupStarts clusters the converged starts by ln L (within
-// sameOptimumTol), best first; ties in ln L at different parameters are
-// flagged as equivalent optima.
-func groupStarts(sr []StartResult, ob *objective) []startGroup {
-	var idx []int
-	for i, s := range sr {
-		if s.Converged && !math.IsNaN(s.LogLik) && !math.IsInf(s.LogLik, 0) {
-			idx = append(idx, i)
-		}
-	}
-	slices.SortStableFunc(idx, func(a, b int) int {
-		switch {
-		case sr[a].LogLik > sr[b].LogLik:
-			return -1
-		case sr[a].LogLik < sr[b].LogLik:
-			return 1
-		}
-		return a - b
-	})
-	var gs []startGroup
-	for _, i := range idx {
-		placed := false
-		for g := range gs {
-			if math.Abs(gs[g].ll-sr[i].LogLik) <= sameOptimumTol {
-				gs[g].members = append(gs[g].members, i)
-				if maxLogDiff(gs[g].x, sr[i].X) > 0.05 {
-					gs[g].equivalent = true
-				}
-				placed = true
-				break
-			}
-		}
-		if !placed {
-			gs = append(gs, startGroup{members: []int{i}, x: sr[i].X, ll: sr[i].LogLik})
-		}
-	}
-	return gs
-}
-
-func maxLogDiff(a, b []float64) float64 {
-	m := 0.0
-	for i := range a {
-		m = math.Max(m, math.Abs(math.Log(a[i])-math.Log(b[i])))
-	}
-	return m
-}
-
-// mergeOptima sorts the optima by ln L on all the data and merges those
-// that refinement brought to the same ln L.
-func mergeOptima(res *FitResult) {
-	order := allIndex(len(res.Optima))
-	slices.SortStableFunc(order, func(a, b int) int {
-		la, lb := res.Optima[a].LogLik, res.Optima[b].LogLik
-		switch {
-		case la > lb:
-			return -1
-		case la < lb:
-			return 1
-		}
-		return a - b
-	})
-	newIdx := make([]int, len(res.Optima))
-	var out []Optimum
-	for _, o := range order {
-		op := res.Optima[o]
-		merged := false
-		for k := range out {
-			if op.Refined && out[k].Refined && math.Abs(out[k].LogLik-op.LogLik) <= sameOptimumTol {
-				out[k].Starts += op.Starts
-				if maxLogDiff(out[k].X, op.X) > 0.05 {
-					out[k].Equivalent = true
-				}
-				newIdx[o] = k
-				merged = true
-				break
-			}
-		}
-		if !merged {
-			newIdx[o] = len(out)
-			out = append(out, op)
-		}
-	}
-	res.Optima = out
-	for i := range res.Starts {
-		if g := res.Starts[i].Optimum; g >= 0 {
-			res.Starts[i].Optimum = newIdx[g]
-		}
-	}
 }
 
 // refine runs the local search on all the data from an exploration
@@ -732,102 +624,4 @@ func structuralWarning(m *models.Model, net *models.Network) []string {
 		return nil
 	}
 	return []string{fmt.Sprintf("the spec has %d free rates, but the records of one visible edge of a %d-state network determine at most about %d rate combinations (4N - 6, an empirical count): some directions will be flat, and the fit names them", nr, n, StructuralLimit(n))}
-}
-
-// alignLabels returns d with its label indices renumbered to the
-// network's label order; a data label that the model lacks is an error
-// naming it.
-func alignLabels(d *likelihood.Data, net *models.Network) (*likelihood.Data, error) {
-	idx := map[string]int{}
-	for i, l := range net.Labels {
-		idx[l.Name] = i
-	}
-	perm := make([]uint8, len(d.Labels))
-	same := len(d.Labels) == len(net.Labels)
-	for i, name := range d.Labels {
-		j, ok := idx[name]
-		if !ok {
-			var have []string
-			for _, l := range net.Labels {
-				have = append(have, fmt.Sprintf("%q", l.Name))
-			}
-			return nil, fmt.Errorf("the records carry label %q, which the model does not have (its labels: %s)", name, joinComma(have))
-		}
-		perm[i] = uint8(j)
-		if j != i {
-			same = false
-		}
-	}
-	if same {
-		return d, nil
-	}
-	out := &likelihood.Data{Labels: make([]string, len(net.Labels))}
-	for i, l := range net.Labels {
-		out.Labels[i] = l.Name
-	}
-	out.Records = make([]likelihood.Record, len(d.Records))
-	for r, rec := range d.Records {
-		lab := make([]uint8, len(rec.Label))
-		for k, l := range rec.Label {
-			lab[k] = perm[l]
-		}
-		out.Records[r] = likelihood.Record{ID: rec.ID, Time: rec.Time, Label: lab, End: rec.End}
-	}
-	return out, nil
-}
-
-func joinComma(s []string) string {
-	out := ""
-	for i, v := range s {
-		if i > 0 {
-			out += ", "
-		}
-		out += v
-	}
-	return out
-}
-
-// exploreBlock is the length, in events, of the blocks the exploration
-// subsample is made of.
-const exploreBlock = 2000
-
-// exploreSubsample returns about gaps gaps of d: blocks of exploreBlock
-// consecutive events taken at an even stride over the records, each a
-// record of its own (conditioned on its first event), so that slow drifts
-// along the records are sampled evenly.
-func exploreSubsample(d *likelihood.Data, gaps int) *likelihood.Data {
-	total := d.Events()
-	nblocks := total / exploreBlock
-	want := gaps/(exploreBlock-1) + 1
-	stride := 1
-	if nblocks > want {
-		stride = nblocks / want
-	}
-	out := &likelihood.Data{Labels: d.Labels}
-	b := 0
-	for _, rec := range d.Records {
-		n := rec.Len()
-		for lo := 0; lo < n; lo += exploreBlock {
-			hi := min(lo+exploreBlock, n)
-			if b%stride == 0 && hi-lo >= 2 {
-				end := math.NaN()
-				if hi == n {
-					end = rec.End
-				}
-				out.Records = append(out.Records, likelihood.Record{ID: rec.ID, Time: rec.Time[lo:hi], Label: rec.Label[lo:hi], End: end})
-			}
-			b++
-		}
-	}
-	if len(out.Records) == 0 {
-		return d
-	}
-	return out
-}
-
-// exploreOptions: the exploration blocks are conditioned on their first
-// event (a block does not start at the clock origin).
-func exploreOptions(o likelihood.Options) likelihood.Options {
-	o.Start = likelihood.StartFirstEvent
-	return o
 }
