@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"slices"
 
 	"edgewise/models"
 
@@ -101,8 +102,23 @@ func profileSide(ctx context.Context, res *FitResult, ob *objective, kinds []mod
 	w0 := workingOf(kinds, res.X)
 	cov := res.Ident.Cov
 	sej := math.Sqrt(math.Max(cov.At(j, j), 0))
-	if !(sej > 0) || math.IsInf(sej, 0) {
-		sej = 0.1
+	nearZero := slices.Contains(res.Ident.NearZero, j)
+	if !(sej > 1e-6) || math.IsInf(sej, 0) || nearZero {
+		// No usable curvature (a rate running to zero): start with a step
+		// of one natural-log unit and no regression of the others.
+		sej = 1 / math.Sqrt(q)
+	}
+	// slope[i] = Cov_ij / Cov_jj: how the others follow parameter j at
+	// the conditional maximum of the quadratic approximation; left out
+	// when it is not a sound guide (no curvature, or a huge slope).
+	slope := make([]float64, len(w0))
+	for i := range slope {
+		if i == j || nearZero || !(cov.At(j, j) > 0) {
+			continue
+		}
+		if b := cov.At(i, j) / cov.At(j, j); math.Abs(b) <= 10 {
+			slope[i] = b
+		}
 	}
 	// Limit of the coordinate on this side.
 	c := ob.coords[j]
@@ -135,22 +151,36 @@ func profileSide(ctx context.Context, res *FitResult, ob *objective, kinds []mod
 	evals := 0
 	deviance := func(t float64) float64 {
 		evals++
-		w := append([]float64(nil), prevW...)
-		for _, i := range others {
-			w[i] += cov.At(i, j) / cov.At(j, j) * (t - prevT)
+		inner := func(step bool) runOutcome {
+			w := append([]float64(nil), prevW...)
+			if step {
+				for _, i := range others {
+					w[i] += slope[i] * (t - prevT)
+				}
+			}
+			w[j] = t
+			x := valuesOf(kinds, w)
+			for _, i := range others {
+				x[i] = clampInside(x[i], ob.coords[i].lo, ob.coords[i].hi)
+			}
+			u := ob.uOf(x)
+			ec := newEvalCache(ob, u, others, 1)
+			v0 := make([]float64, len(others))
+			for a, i := range others {
+				v0[a] = u[i]
+			}
+			return minimizeLocal(ctx, ec, v0, nil, localOptions{MaxIter: 200, GradTol: gradTol(ob.n)})
 		}
-		w[j] = t
-		x := valuesOf(kinds, w)
-		for _, i := range others {
-			x[i] = clampInside(x[i], ob.coords[i].lo, ob.coords[i].hi)
+		// From the predicted point, and when that search does not
+		// converge, also from the previous profile point: the profile is
+		// the larger of the two (a search that stops early would
+		// overstate the deviance and shrink the interval).
+		out := inner(true)
+		if !out.Converged && ctx.Err() == nil {
+			if alt := inner(false); alt.F < out.F {
+				out = alt
+			}
 		}
-		u := ob.uOf(x)
-		ec := newEvalCache(ob, u, others, 1)
-		v0 := make([]float64, len(others))
-		for a, i := range others {
-			v0[a] = u[i]
-		}
-		out := minimizeLocal(ctx, ec, v0, nil, localOptions{MaxIter: 200, GradTol: gradTol(ob.n)})
 		ll := -out.F * ob.n
 		if math.IsInf(out.F, 1) || math.IsNaN(ll) {
 			return math.Inf(1)

@@ -274,7 +274,11 @@ func fitTables(r *output.Report, res *infer.FitResult, derived []infer.Derived, 
 		if p.Profile != nil {
 			iv = profileCell(p.Profile)
 		}
-		if p.AtBound != "" {
+		switch p.AtBound {
+		case "":
+		case "near zero":
+			status = "near zero: interval reaches 0"
+		default:
 			status += "; at " + p.AtBound
 		}
 		if res.Ident == nil {
