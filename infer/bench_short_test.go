@@ -94,3 +94,23 @@ func BenchmarkSummarizeShortRecords(b *testing.B) { benchSummarize(b, shortRecor
 
 // BenchmarkSummarizeOneRecord: the same number of events in one record.
 func BenchmarkSummarizeOneRecord(b *testing.B) { benchSummarize(b, 1, 2*shortRecords) }
+
+func benchRead(b *testing.B, records, events int) {
+	path := benchFile(b, records, events)
+	b.ResetTimer()
+	for i := 0; i < b.N; i++ {
+		if _, _, err := ReadFile(path, ReadOptions{}); err != nil {
+			b.Fatal(err)
+		}
+	}
+	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N)/float64(records*events), "ns/event")
+}
+
+// BenchmarkReadShortRecords: the reader on 10^6 records of 2 events
+// (CSV with a record column);
+//
+//	go test -run '^$' -bench 'Read(Short|One)' -benchtime 3x -benchmem ./infer
+func BenchmarkReadShortRecords(b *testing.B) { benchRead(b, shortRecords, 2) }
+
+// BenchmarkReadOneRecord: the same number of events in one record.
+func BenchmarkReadOneRecord(b *testing.B) { benchRead(b, 1, 2*shortRecords) }

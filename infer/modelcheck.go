@@ -206,11 +206,25 @@ func AgainstModel(d *likelihood.Data, p *likelihood.Predictor, o AgainstOptions)
 		}
 	}
 	out = append(out, Agreement{Quantity: "current J (1/time)", Model: jm, Data: cur, Test: CurrentTest(jd, sum.Pooled.Duration, jm, dm)})
-	if len(o.Windows) > 0 {
+	// Windows longer than every record cannot be formed: say so and
+	// compare the others (many short records are a real case).
+	longest := 0
+	for r := range d.Records {
+		longest = max(longest, d.Records[r].Len())
+	}
+	var windows []int
+	for _, n := range o.Windows {
+		if n > longest {
+			notes = append(notes, fmt.Sprintf("no record has %d events (the longest has %d): the count-stopped slope for n = %d is not compared", n, longest, n))
+			continue
+		}
+		windows = append(windows, n)
+	}
+	if len(windows) > 0 {
 		if nl != 2 {
 			notes = append(notes, fmt.Sprintf("the data have %d labels: the count-stopped slopes need the two labels of one visible edge only, so they are not compared", nl))
 		} else {
-			fr, err := FluctuationTest(d, o.Windows, FluctOptions{Labels: EdgeLabels{Forward: pl, Backward: mi}, Level: o.Level, FixedTime: o.FixedTime})
+			fr, err := FluctuationTest(d, windows, FluctOptions{Labels: EdgeLabels{Forward: pl, Backward: mi}, Level: o.Level, FixedTime: o.FixedTime})
 			if err != nil {
 				return nil, nil, err
 			}

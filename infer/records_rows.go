@@ -9,6 +9,7 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"slices"
 	"strconv"
 	"strings"
 
@@ -304,7 +305,21 @@ func (p *parser) grow() {
 	if p.size <= 0 || p.bytes <= 0 {
 		return
 	}
-	est := int(float64(p.size)/float64(p.bytes)*float64(len(p.times))*1.03) + 1024
+	scale := float64(p.size) / float64(p.bytes) * 1.03
+	// Many records (short traces): size the record tables and the map of
+	// record IDs the same way, so that they do not grow by copying.
+	if nr := len(p.data.Records); nr >= 64 {
+		er := int(scale*float64(nr)) + 64
+		p.data.Records = slices.Grow(p.data.Records, er-nr)
+		p.rep.Records = slices.Grow(p.rep.Records, er-nr)
+		seen := make(map[string]int, er)
+		for k, v := range p.seenIDs {
+			seen[k] = v
+		}
+		p.seenIDs = seen
+		p.bounds = slices.Grow(p.bounds, er-nr)
+	}
+	est := int(scale*float64(len(p.times))) + 1024
 	if est <= cap(p.times) {
 		return
 	}

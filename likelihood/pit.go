@@ -256,7 +256,7 @@ func (e *Evaluator) PIT(d *Data, seed uint64) (*PIT, error) {
 					return
 				}
 				it := &its[i]
-				for _, sg := range it.segs {
+				for sg := range it.segments(d) {
 					out := res.U[res.Offsets[sg.r]:res.Offsets[sg.r+1]]
 					if e.fast {
 						it.err = e.pitFast(ws, tb, d, &lm, sg, out, skip, seed)

@@ -3,6 +3,7 @@ package likelihood
 import (
 	"errors"
 	"fmt"
+	"iter"
 	"math"
 	"runtime"
 	"sync"
@@ -70,13 +71,40 @@ func (e *Evaluator) dataLabels(d *Data) ([256]int16, error) {
 	return lm, nil
 }
 
-// item is one unit of work: whole records (general path) or a range of
-// events of one record (fast path). Items depend on the data only.
+// item is one unit of work: whole records r0..r1-1, or (fast path) the
+// range of events piece of one long record. Items depend on the data only,
+// and hold no list per record, so that many short records cost no memory
+// beyond the data.
 type item struct {
-	segs  []segment
-	acc   *accum
-	err   error
-	parts []float64 // ln L of each segment, when per-record values are wanted
+	r0, r1 int     // whole records, when piece.k1 == 0
+	piece  segment // a part of one record, when piece.k1 > 0
+	acc    *accum
+	err    error
+	parts  []float64 // ln L of each segment, when per-record values are wanted
+}
+
+// segments yields the item's segments in order: its whole records, or its
+// piece of one record.
+func (it *item) segments(d *Data) iter.Seq[segment] {
+	return func(yield func(segment) bool) {
+		if it.piece.k1 > 0 {
+			yield(it.piece)
+			return
+		}
+		for r := it.r0; r < it.r1; r++ {
+			if !yield(segment{r, 0, d.Records[r].Len()}) {
+				return
+			}
+		}
+	}
+}
+
+// record returns the record of the item's j-th segment.
+func (it *item) record(j int) int {
+	if it.piece.k1 > 0 {
+		return it.piece.r
+	}
+	return it.r0 + j
 }
 
 type segment struct {
@@ -89,31 +117,29 @@ const itemEvents = 1 << 15
 
 func (e *Evaluator) items(d *Data) []item {
 	var its []item
-	var cur item
-	count := 0
-	flush := func() {
-		if len(cur.segs) > 0 {
-			its = append(its, cur)
+	r0, count := 0, 0 // whole records r0.. not yet in an item, their events
+	flush := func(r1 int) {
+		if r1 > r0 {
+			its = append(its, item{r0: r0, r1: r1})
 		}
-		cur, count = item{}, 0
+		r0, count = r1, 0
 	}
 	for r := range d.Records {
 		n := d.Records[r].Len()
 		if e.fast && n > itemEvents {
-			flush()
+			flush(r)
 			for k0 := 0; k0 < n; k0 += itemEvents {
-				cur.segs = append(cur.segs, segment{r, k0, min(k0+itemEvents, n)})
-				flush()
+				its = append(its, item{piece: segment{r, k0, min(k0+itemEvents, n)}})
 			}
+			r0 = r + 1
 			continue
 		}
-		cur.segs = append(cur.segs, segment{r, 0, n})
 		count += n
 		if count >= itemEvents {
-			flush()
+			flush(r + 1)
 		}
 	}
-	flush()
+	flush(len(d.Records))
 	return its
 }
 
@@ -160,7 +186,7 @@ func (e *Evaluator) run(d *Data, grad bool, perRecord []float64) (*accum, error)
 				it := &its[i]
 				it.acc = e.newAccum(grad)
 				ws.acc = it.acc
-				for _, sg := range it.segs {
+				for sg := range it.segments(d) {
 					var err error
 					var ll0, lm0 float64
 					if perRecord != nil {
@@ -193,7 +219,7 @@ func (e *Evaluator) run(d *Data, grad bool, perRecord []float64) (*accum, error)
 		}
 		total.add(its[i].acc)
 		for j, v := range its[i].parts {
-			perRecord[its[i].segs[j].r] += v
+			perRecord[its[i].record(j)] += v
 		}
 	}
 	total.ll += total.lmant
