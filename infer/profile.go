@@ -8,6 +8,7 @@ import (
 
 	"edgewise/models"
 
+	"gonum.org/v1/gonum/mat"
 	"gonum.org/v1/gonum/stat/distuv"
 )
 
@@ -143,6 +144,11 @@ func profileSide(ctx context.Context, res *FitResult, ob *objective, kinds []mod
 			others = append(others, i)
 		}
 	}
+	// Preconditioner of the inner searches: the information of the other
+	// coordinates (per gap, in the optimiser's coordinates), from the fit's
+	// observed information; the inner problems are then nearly Newton
+	// steps.
+	pre := innerPreconditioner(res.Info, ob, kinds, res.X, others)
 	// The inner maximisation at w_j = t, warm-started at the conditional
 	// mean of the other coordinates given t (regression through Cov).
 	prevW := append([]float64(nil), w0...)
@@ -169,7 +175,7 @@ func profileSide(ctx context.Context, res *FitResult, ob *objective, kinds []mod
 			for a, i := range others {
 				v0[a] = u[i]
 			}
-			return minimizeLocal(ctx, ec, v0, nil, localOptions{MaxIter: 200, GradTol: gradTol(ob.n)})
+			return minimizeLocal(ctx, ec, v0, pre, localOptions{MaxIter: 200, GradTol: gradTol(ob.n)})
 		}
 		// From the predicted point, and when that search does not
 		// converge, also from the previous profile point: the profile is
@@ -241,4 +247,56 @@ func profileSide(ctx context.Context, res *FitResult, ob *objective, kinds []mod
 		rb = deviance(tb)
 	}
 	return tb, rb < z, higher, evals
+}
+
+// innerPreconditioner returns V diag(lambda^-1/2) of the per-gap
+// information of the coordinates others in the optimiser's coordinates u,
+// I_u = D I_w D / n with D = diag(dw/du) (central differences of the
+// coordinate maps), eigenvalues floored at 1e-6 of the largest; nil when
+// there is no information matrix.
+func innerPreconditioner(info *mat.SymDense, ob *objective, kinds []models.ParamKind, x []float64, others []int) *mat.Dense {
+	if info == nil || len(others) == 0 {
+		return nil
+	}
+	u := ob.uOf(x)
+	dw := make([]float64, len(x))
+	for i := range x {
+		const h = 1e-6
+		up, dn := append([]float64(nil), u...), append([]float64(nil), u...)
+		up[i] += h
+		dn[i] -= h
+		wu := workingOf(kinds, ob.xOf(up))
+		wd := workingOf(kinds, ob.xOf(dn))
+		dw[i] = (wu[i] - wd[i]) / (2 * h)
+	}
+	m := len(others)
+	h := mat.NewSymDense(m, nil)
+	for a, i := range others {
+		for b := a; b < m; b++ {
+			k := others[b]
+			h.SetSym(a, b, dw[i]*info.At(i, k)*dw[k]/ob.n)
+		}
+	}
+	var es mat.EigenSym
+	if !es.Factorize(h, true) {
+		return nil
+	}
+	lam := es.Values(nil)
+	var vec mat.Dense
+	es.VectorsTo(&vec)
+	lmax := 0.0
+	for _, l := range lam {
+		lmax = math.Max(lmax, l)
+	}
+	if !(lmax > 0) {
+		return nil
+	}
+	pre := mat.NewDense(m, m, nil)
+	for k, l := range lam {
+		sc := 1 / math.Sqrt(math.Max(l, 1e-6*lmax))
+		for i := 0; i < m; i++ {
+			pre.Set(i, k, vec.At(i, k)*sc)
+		}
+	}
+	return pre
 }
