@@ -206,6 +206,11 @@ type evalCache struct {
 	bestU   []float64
 	mu      sync.Mutex
 	penalty float64 // f returned where ln L cannot be evaluated
+	// extra, when not nil, is a term added to f (in the same units, -ln
+	// L / n) with its gradient with respect to the full u vector: the
+	// constraint terms of an augmented Lagrangian (leastsigma.go). An
+	// error counts as a point where ln L cannot be evaluated.
+	extra func(u []float64) (float64, []float64, error)
 }
 
 func newEvalCache(ob *objective, base []float64, free []int, workers int) *evalCache {
@@ -250,6 +255,19 @@ func (ec *evalCache) at(v []float64) (float64, []float64) {
 	ec.f = -ll / ec.ob.n
 	for i, j := range ec.free {
 		ec.g[i] = -gx[j] * ec.ob.coords[j].dx(u[j]) / ec.ob.n
+	}
+	if ec.extra != nil {
+		fe, ge, err := ec.extra(u)
+		if err != nil || math.IsNaN(fe) || math.IsInf(fe, 0) {
+			ec.err = err
+			clear(ec.g)
+			ec.f = math.Min(1e300, ec.penalty)
+			return ec.f, ec.g
+		}
+		ec.f += fe
+		for i, j := range ec.free {
+			ec.g[i] += ge[j]
+		}
 	}
 	if ec.f < ec.bestF {
 		ec.bestF = ec.f
