@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"math"
 	"slices"
+	"strings"
 
 	"edgewise/likelihood"
 	"edgewise/models"
@@ -62,7 +63,7 @@ func quantityOf(m *models.Model, x []float64, name string, ins likelihood.Instru
 		for _, r := range ls.Rows {
 			have = append(have, r.Name)
 		}
-		return nil, models.Quantity{}, fmt.Errorf("quantity profile: model %s has no quantity %q (it has %s)", m.Name, name, joinComma(have))
+		return nil, models.Quantity{}, fmt.Errorf("quantity profile: model %s has no quantity %q (it has %s)", m.Name, name, strings.Join(have, ", "))
 	}
 	return func(x []float64) (float64, []float64, error) {
 		s, dx, err := likelihood.ModelSensitivity(m, x, ins)
