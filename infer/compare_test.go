@@ -1,6 +1,7 @@
 package infer
 
 import (
+	"math/rand/v2"
 	"strings"
 	"testing"
 )
@@ -64,5 +65,44 @@ func TestCompareRulesOutRingByShape(t *testing.T) {
 	}
 	if !found {
 		t.Errorf("ring4 not found nested in twocycle: %+v", res.Nested)
+	}
+}
+
+// The CI version of the topology-recovery check (the long one is
+// TestTopologyRecoveryLong): records from a 3-state ring (seeded random
+// rates) and from the shipped two-cycle scheme (a ring with the chord
+// A-C), 10^4 events each, four candidates; the generating topology ranks
+// first by BIC.
+func TestTopologyRecoverySmall(t *testing.T) {
+	fams, err := Families(FamilyOptions{Rings: StateRange{Min: 3, Max: 4}, Chords: StateRange{Min: 4, Max: 4}, Loops: StateRange{Min: 3, Max: 3}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var cands []Candidate
+	byName := map[string]int{}
+	for i, m := range fams {
+		if m.Name == "ring4+chord(B,D)" {
+			continue
+		}
+		byName[m.Name] = i
+		cands = append(cands, Candidate{Name: m.Name, Model: m})
+	}
+	for ti, name := range []string{"ring3", "ring4+chord(A,C)"} {
+		rng := rand.New(rand.NewPCG(uint64(ti), 99))
+		truth := randomRatesModel(fams[byName[name]], rng)
+		if ti == 1 {
+			truth = readSpec(t, "../testdata/compare/truth-twocycle.toml")
+		}
+		d := truthData(t, truth, uint64(60+ti), 1, 10000)
+		res, err := Compare(cands, d, CompareOptions{Fit: FitOptions{Starts: 3, Seed: 1, Workers: 2}})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if res.Ranked[0].Name != name {
+			for _, r := range res.Ranked {
+				t.Logf("%s: BIC %.2f k %d", r.Name, r.BIC, r.Fit.Effective())
+			}
+			t.Errorf("truth %s: first by BIC is %s", name, res.Ranked[0].Name)
+		}
 	}
 }

@@ -393,8 +393,12 @@ func shrunk1(x, anchor []float64, k int) []float64 {
 // or less).
 const smallRate = 0.05
 
-// smallRates marks the free rates below smallRate times the visible event
-// rate of d.
+// smallRates marks the free rates at the edge of the records' time scale:
+// below smallRate times the visible event rate of d (rarely used), or
+// above 1/smallRate^2 = 400 times it (a transit too fast to show: the
+// scheme acts as the smaller one without that state). A flat direction
+// made of such rates is the scheme reducing to a smaller one, and those
+// rates still count as parameters.
 func smallRates(x []float64, kinds []models.ParamKind, d *likelihood.Data) []bool {
 	tg := targetsOf(d)
 	out := make([]bool, len(x))
@@ -402,7 +406,7 @@ func smallRates(x []float64, kinds []models.ParamKind, d *likelihood.Data) []boo
 		return out
 	}
 	for j, v := range x {
-		out[j] = kinds[j] == models.RateParam && v < smallRate/tg.meanGap
+		out[j] = kinds[j] == models.RateParam && (v < smallRate/tg.meanGap || v > 1/(smallRate*smallRate*tg.meanGap))
 	}
 	return out
 }
