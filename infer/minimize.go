@@ -3,6 +3,7 @@ package infer
 import (
 	"context"
 	"errors"
+	"fmt"
 	"math"
 
 	"gonum.org/v1/gonum/floats"
@@ -94,6 +95,7 @@ func minimizeLocal(ctx context.Context, ec *evalCache, v0 []float64, pre *mat.De
 	conv := &gradConverger{ec: ec, toV: toV, tol: tolScaled}
 	set := &optimize.Settings{
 		MajorIterations:   lo.MaxIter,
+		FuncEvaluations:   maxEvals(lo.MaxIter),
 		GradientThreshold: 0,
 		Converger:         conv,
 	}
@@ -120,6 +122,13 @@ func minimizeLocal(ctx context.Context, ec *evalCache, v0 []float64, pre *mat.De
 		out.Status = "converged"
 	case res != nil && res.Status == optimize.IterationLimit:
 		out.Status = "iteration cap reached"
+	case res != nil && res.Status == optimize.FunctionEvaluationLimit:
+		out.Status = "evaluation cap reached"
+	case res != nil && res.Status == optimize.FunctionConvergence && out.GradNorm <= 100*lo.GradTol:
+		out.Converged = true
+		out.Status = "converged (ln L no longer improves)"
+	case res != nil && res.Status == optimize.FunctionConvergence:
+		out.Status = fmt.Sprintf("stalled: ln L improved by less than %g nats over %d iterations with the gradient still %.3g", stallNats, stallIters, out.GradNorm)
 	case err != nil && errors.Is(err, optimize.ErrLinesearcherFailure) && out.GradNorm <= 100*lo.GradTol:
 		// The line search can no longer improve f in floating point:
 		// the point is a maximum to the precision of ln L.
@@ -133,23 +142,41 @@ func minimizeLocal(ctx context.Context, ec *evalCache, v0 []float64, pre *mat.De
 	return out
 }
 
+// Stall and evaluation limits of one local search: a search whose ln L
+// improves by less than stallNats over stallIters iterations stops (on a
+// ridge, or where rounding hides the slope), and no search makes more than
+// maxEvals(maxIter) evaluations (each can be costly where the rates are
+// extreme and the exponentials fall back to slower routes).
+const (
+	stallNats  = 1e-6
+	stallIters = 30
+)
+
+func maxEvals(maxIter int) int { return 5 * maxIter }
+
 // gradConverger stops when the gradient's infinity norm in the optimised
-// coordinates is below tol.
+// coordinates is below tol, or when f (-ln L per gap) has improved by
+// less than stallNats in all over the last stallIters iterations.
 type gradConverger struct {
-	ec  *evalCache
-	toV func([]float64) []float64
-	tol float64
-	n   int
+	ec   *evalCache
+	toV  func([]float64) []float64
+	tol  float64
+	n    int
+	hist []float64
 }
 
-func (c *gradConverger) Init(int) { c.n = 0 }
+func (c *gradConverger) Init(int) { c.n, c.hist = 0, c.hist[:0] }
 
 func (c *gradConverger) Converged(loc *optimize.Location) optimize.Status {
-	_, g := c.ec.at(c.toV(loc.X))
+	f, g := c.ec.at(c.toV(loc.X))
 	if floats.Norm(g, math.Inf(1)) <= c.tol {
 		return optimize.GradientThreshold
 	}
 	c.n++
+	c.hist = append(c.hist, f)
+	if k := len(c.hist); k > stallIters && (c.hist[k-1-stallIters]-f)*c.ec.ob.n < stallNats {
+		return optimize.FunctionConvergence
+	}
 	return optimize.NotTerminated
 }
 

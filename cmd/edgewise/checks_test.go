@@ -85,7 +85,7 @@ func TestGolden(t *testing.T) {
 func TestJSONSchema(t *testing.T) {
 	c := jsonschema.NewCompiler()
 	schemas := map[string]*jsonschema.Schema{}
-	for _, cmd := range []string{"describe", "inspect", "fluct", "predict", "fit", "compare"} {
+	for _, cmd := range []string{"describe", "inspect", "fluct", "predict", "fit", "compare", "plan"} {
 		s, err := c.Compile(filepath.Join("..", "..", "docs", "schema", cmd+".json"))
 		if err != nil {
 			t.Fatalf("%s: %v", cmd, err)
@@ -108,6 +108,7 @@ func TestJSONSchema(t *testing.T) {
 		{"predict", "../../testdata/shared-label.toml"},
 		{"fit", "../../testdata/ring3-demo.csv", "../../testdata/ring3.toml", "--starts", "2"},
 		{"compare", "../../testdata/ring3-demo.csv", "../../testdata/ring3.toml", "--chains", "2", "--starts", "2"},
+		{"plan", "../../testdata/ring3.toml", "../../testdata/ring3.toml", "--events", "200", "--replicates", "2", "--kl-events", "2000", "--starts", "1", "--se", "0.1"},
 	} {
 		out := runOut(t, append(args, "--format", "json")...)
 		inst, err := jsonschema.UnmarshalJSON(bytes.NewReader(out))
