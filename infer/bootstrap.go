@@ -2,7 +2,6 @@ package infer
 
 import (
 	"context"
-	"errors"
 	"fmt"
 	"math"
 	"runtime"
@@ -266,23 +265,4 @@ func BootstrapPValue(observed float64, lr []float64) (p float64, exceed, used, f
 		}
 	}
 	return float64(1+exceed) / float64(1+used), exceed, used, failed
-}
-
-// errNoPair is returned when fewer than two candidates were fitted.
-var errNoPair = errors.New("the bootstrap needs two fitted candidates")
-
-// BootstrapPair returns the two best fitted candidates of a ranking (best
-// first): the alternative and the null of the bootstrap.
-func BootstrapPair(rs []Ranked) (best, second *Ranked, err error) {
-	for i := range rs {
-		if rs[i].Fit == nil {
-			continue
-		}
-		if best == nil {
-			best = &rs[i]
-		} else {
-			return best, &rs[i], nil
-		}
-	}
-	return nil, nil, errNoPair
 }
