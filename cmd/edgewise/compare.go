@@ -54,6 +54,30 @@ loop, --loop-states), --chains 2-4 (no cycle: equilibrium by
 construction), --all-graphs N (every connected graph of up to N <= 5
 states around the visible edge, up to isomorphism).
 
+--bootstrap B calibrates the likelihood ratio of the two best candidates
+by a parametric bootstrap: B data sets simulated from the second best at
+its fitted values, with the records' structure (as many records, each
+with as many events), both refitted to each; p = (1 + #{LR_b >= LR}) /
+(1 + B). Replicate b draws from --seed and b alone, so p does not depend
+on --workers or on sharding.
+
+Large comparisons split into independent jobs: --shard i/N (numbered from
+1, as SLURM array tasks) fits candidates j with j mod N = i - 1 and writes
+a part file (JSON) instead of the report; 'edgewise merge PARTS...' joins
+the N parts into the report a single run prints, byte for byte. With
+--bootstrap B --fits 'PARTS' a shard runs its share of the replicates
+(b mod N = i - 1) for the two best candidates of those parts; merge joins
+these parts too. The stamp's command line leaves out the options that
+only say where and how to write (-o, --format, --force, --quiet,
+--report) or how to split the work (--shard, --fits).
+
+--report DIR writes into a new or empty folder the report as table.txt,
+.md, .tex, .csv and .json; the figures gaps (the records' gap densities
+with each of the three best candidates' psi), fluct (the records'
+ln[P_n(c)/P_n(-c)] with each one's exact count-stopped law) and weights
+(Akaike weights), each as PNG and PDF; and summary.md, a plain-language
+summary.
+
 Example:
   edgewise compare testdata/compare/lidlock.csv testdata/compare/ring4.toml testdata/compare/twocycle.toml --chains 3-4
 

@@ -329,6 +329,8 @@ func assemble(parts []*comparePart, partial bool) (*partSetup, *cmpView, error) 
 		}
 		v.Boot = bv
 		setup = boot[0].Setup
+	} else if _, _, _, ok := bootPairOf(v); setup.Bootstrap > 0 && !partial && !ok {
+		v.Boot = &bootView{Note: fmt.Sprintf("the bootstrap (%d replicates) was not run: it needs two fitted candidates", setup.Bootstrap)}
 	} else if setup.Bootstrap > 0 && !partial {
 		v.Boot = &bootView{Note: fmt.Sprintf("the bootstrap (%d replicates) is still to run: edgewise compare with the same arguments and --shard i/M --fits 'PARTS' writes its parts; merge them with these", setup.Bootstrap)}
 	}
