@@ -54,169 +54,334 @@ loop, --loop-states), --chains 2-4 (no cycle: equilibrium by
 construction), --all-graphs N (every connected graph of up to N <= 5
 states around the visible edge, up to isomorphism).
 
+--bootstrap B calibrates the likelihood ratio of the two best candidates
+by a parametric bootstrap: B data sets simulated from the second best at
+its fitted values, with the records' structure (as many records, each
+with as many events), both refitted to each; p = (1 + #{LR_b >= LR}) /
+(1 + B). Replicate b draws from --seed and b alone, so p does not depend
+on --workers or on sharding.
+
+Large comparisons split into independent jobs: --shard i/N (numbered from
+1, as SLURM array tasks) fits candidates j with j mod N = i - 1 and writes
+a part file (JSON) instead of the report; 'edgewise merge PARTS...' joins
+the N parts into the report a single run prints, byte for byte. With
+--bootstrap B --fits 'PARTS' a shard runs its share of the replicates
+(b mod N = i - 1) for the two best candidates of those parts; merge joins
+these parts too. The stamp's command line leaves out the options that
+only say where and how to write (-o, --format, --force, --quiet,
+--report) or how to split the work (--shard, --fits).
+
+--report DIR writes into a new or empty folder the report as table.txt,
+.md, .tex, .csv and .json; the figures gaps (the records' gap densities
+with each of the three best candidates' psi), fluct (the records'
+ln[P_n(c)/P_n(-c)] with each one's exact count-stopped law) and weights
+(Akaike weights), each as PNG and PDF; and summary.md, a plain-language
+summary.
+
 Example:
   edgewise compare testdata/compare/lidlock.csv testdata/compare/ring4.toml testdata/compare/twocycle.toml --chains 3-4
 
 Options:
 `
 
-func cmdCompare(args []string, stdout, stderr io.Writer) int {
-	c := newCommand("compare", compareHelp, args, stdout, stderr)
-	ff := c.addFitFlags(4)
-	rings := c.fs.String("rings", "", "add rings of MIN-MAX states through the visible edge, e.g. 3-5")
-	chords := c.fs.String("chords", "", "add rings of MIN-MAX states with one chord (two cycles)")
-	loops := c.fs.String("loops", "", "add rings of MIN-MAX states with a side loop on a hidden state")
-	loopStates := c.fs.Int("loop-states", 3, "states on each side loop, its hinge included")
-	chains := c.fs.String("chains", "", "add linear chains of MIN-MAX states through the visible edge (no cycle)")
-	allGraphs := c.fs.Int("all-graphs", 0, "add every connected graph of 2..N states (N <= 5) containing the visible edge")
-	known := c.fs.String("known-affinity", "", "a known force in k_BT on every cycle through the visible edge (tight coupling), tested by likelihood ratio")
-	ns := c.fs.StringP("windows", "w", "5,10,20", "window lengths of the count-stopped law P_n(c), comma separated")
-	multi := c.fs.Bool("multi-edge", false, "a label may sit on several directed edges (withholds the entropy bounds)")
-	rf := addRecordFlags(c.fs)
+// compareFlags are the options of compare.
+type compareFlags struct {
+	ff                           *fitFlags
+	rf                           *recordFlags
+	rings, chords, loops, chains *string
+	loopStates, allGraphs        *int
+	known, windows               *string
+	multi                        *bool
+	shard, fits, report          *string
+	boot                         *int
+}
+
+func addCompareFlags(c *command) *compareFlags {
+	f := &compareFlags{ff: c.addFitFlags(4)}
+	f.rings = c.fs.String("rings", "", "add rings of MIN-MAX states through the visible edge, e.g. 3-5")
+	f.chords = c.fs.String("chords", "", "add rings of MIN-MAX states with one chord (two cycles)")
+	f.loops = c.fs.String("loops", "", "add rings of MIN-MAX states with a side loop on a hidden state")
+	f.loopStates = c.fs.Int("loop-states", 3, "states on each side loop, its hinge included")
+	f.chains = c.fs.String("chains", "", "add linear chains of MIN-MAX states through the visible edge (no cycle)")
+	f.allGraphs = c.fs.Int("all-graphs", 0, "add every connected graph of 2..N states (N <= 5) containing the visible edge")
+	f.known = c.fs.String("known-affinity", "", "a known force in k_BT on every cycle through the visible edge (tight coupling), tested by likelihood ratio")
+	f.windows = c.fs.StringP("windows", "w", "5,10,20", "window lengths of the count-stopped law P_n(c), comma separated")
+	f.multi = c.fs.Bool("multi-edge", false, "a label may sit on several directed edges (withholds the entropy bounds)")
+	f.boot = c.fs.Int("bootstrap", 0, "parametric-bootstrap p-value of the likelihood ratio of the two best candidates from this many simulated data sets")
+	f.shard = c.fs.String("shard", "", "run shard i of N (i/N, numbered from 1) of the candidates, or with --fits of the bootstrap replicates, and write a part file for merge instead of the report")
+	f.fits = c.fs.String("fits", "", "with --shard and --bootstrap: the candidate part files of this comparison (comma separated, globs allowed); run this shard's bootstrap replicates for their two best candidates")
+	f.report = c.fs.String("report", "", "write the tables in every format, the figures (PNG and PDF) and a plain-language summary into this folder (new or empty, or --force)")
+	f.rf = addRecordFlags(c.fs)
 	c.outputFlags(true)
 	c.timeUnitFlag()
-	if code := c.parse(); code >= 0 {
-		return code
-	}
+	return f
+}
+
+// comparePrep is a comparison ready to run: the records, the candidates,
+// the library's options and the set-up every part of it shares.
+type comparePrep struct {
+	rin     *recordsInput
+	cands   []infer.Candidate
+	opt     infer.CompareOptions
+	setup   partSetup
+	shard   infer.Shard
+	sharded bool
+	fits    []string
+}
+
+// prepareCompare validates the options, reads the records and the
+// candidates and builds the options; it returns the exit code of a
+// failure, or -1.
+func prepareCompare(c *command, f *compareFlags) (*comparePrep, int) {
+	ff, rf := f.ff, f.rf
 	if c.fs.NArg() < 1 {
-		return c.usage("want RECORDS [MODEL ...], got no arguments")
+		return nil, c.usage("want RECORDS [MODEL ...], got no arguments")
 	}
 	if _, err := c.outputFormat(); err != nil {
-		return c.usage("%v", err)
+		return nil, c.usage("%v", err)
 	}
 	if err := checkTimeUnit(*c.timeUnit); err != nil {
-		return c.usage("%v", err)
+		return nil, c.usage("%v", err)
 	}
 	if err := ff.check(); err != nil {
-		return c.usage("%v", err)
+		return nil, c.usage("%v", err)
 	}
 	if err := rf.checkLevel(); err != nil {
-		return c.usage("%v", err)
+		return nil, c.usage("%v", err)
 	}
-	windows, err := parseInts(*ns)
+	windows, err := parseInts(*f.windows)
 	if err != nil {
-		return c.usage("--windows: %v", err)
+		return nil, c.usage("--windows: %v", err)
 	}
 	for _, n := range windows {
 		if n < 2 || n > maxWindow {
-			return c.usage("--windows: window length %d: want 2 to %d events", n, maxWindow)
+			return nil, c.usage("--windows: window length %d: want 2 to %d events", n, maxWindow)
 		}
 	}
 	var knownVal *float64
-	if *known != "" {
-		v, err := strconv.ParseFloat(*known, 64)
+	if *f.known != "" {
+		v, err := strconv.ParseFloat(*f.known, 64)
 		if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
-			return c.usage("--known-affinity %q: want a finite number (k_BT)", *known)
+			return nil, c.usage("--known-affinity %q: want a finite number (k_BT)", *f.known)
 		}
 		knownVal = &v
 	}
-	fo := infer.FamilyOptions{LoopStates: *loopStates, Exhaustive: *allGraphs}
-	for _, f := range []struct {
+	p := &comparePrep{}
+	if *f.boot < 0 || *f.boot > maxBootstrap {
+		return nil, c.usage("--bootstrap %d: want 0 (none) to %d replicates", *f.boot, maxBootstrap)
+	}
+	if *f.shard != "" {
+		if p.shard, err = parseShard(*f.shard); err != nil {
+			return nil, c.usage("%v", err)
+		}
+		p.sharded = true
+		switch {
+		case *f.report != "":
+			return nil, c.usage("--report with --shard: a shard writes a part file; give --report to edgewise merge")
+		case c.fs.Changed("format"):
+			return nil, c.usage("--format with --shard: a shard writes a part file (JSON); give --format to edgewise merge")
+		}
+	}
+	if *f.fits != "" {
+		if !p.sharded || *f.boot == 0 {
+			return nil, c.usage("--fits needs --shard i/N and --bootstrap B: it runs shard i of the bootstrap replicates for the candidate parts it names")
+		}
+		p.fits = strings.Split(*f.fits, ",")
+	}
+	fo := infer.FamilyOptions{LoopStates: *f.loopStates, Exhaustive: *f.allGraphs}
+	for _, fam := range []struct {
 		name string
 		s    string
 		dst  *infer.StateRange
-	}{{"--rings", *rings, &fo.Rings}, {"--chords", *chords, &fo.Chords}, {"--loops", *loops, &fo.Loops}, {"--chains", *chains, &fo.Chains}} {
-		if f.s == "" {
+	}{{"--rings", *f.rings, &fo.Rings}, {"--chords", *f.chords, &fo.Chords}, {"--loops", *f.loops, &fo.Loops}, {"--chains", *f.chains, &fo.Chains}} {
+		if fam.s == "" {
 			continue
 		}
-		r, err := infer.ParseStateRange(f.s)
+		r, err := infer.ParseStateRange(fam.s)
 		if err != nil {
-			return c.usage("%s: %v", f.name, err)
+			return nil, c.usage("%s: %v", fam.name, err)
 		}
-		*f.dst = r
-	}
-	files := output.NewFiles(stdout, *c.force)
-	defer files.Close()
-	if err := files.Claim("-o", *c.out); err != nil {
-		return c.fail(1, err)
+		*fam.dst = r
 	}
 	recPath := c.fs.Arg(0)
 	if sniffFile(recPath) == "spec" {
-		return c.fail(2, &kindError{path: recPath, is: specKind, want: recordsKind})
+		return nil, c.fail(2, &kindError{path: recPath, is: specKind, want: recordsKind})
 	}
 	ropt, err := rf.readOptions()
 	if err != nil {
-		return c.usage("%v", err)
+		return nil, c.usage("%v", err)
 	}
 	rin, err := c.readRecords(recPath, os.Stdin, ropt)
 	if err != nil {
-		return c.fail(1, err)
+		return nil, c.fail(1, err)
 	}
+	p.rin = rin
 	plus, minus, edgeNote, err := rf.chooseEdge(rin)
 	if err != nil {
-		return c.usage("%v", err)
+		return nil, c.usage("%v", err)
 	}
 	inputs := []output.Input{rin.input()}
-	var cands []infer.Candidate
 	specUnit := ""
 	for _, path := range c.fs.Args()[1:] {
 		src, m, net, err := loadModel(path)
 		if err != nil {
-			return c.fail(1, err)
+			return nil, c.fail(1, err)
 		}
 		if err := checkLabels(rin, net); err != nil {
-			return c.fail(1, fmt.Errorf("candidate %s: %w", path, err))
+			return nil, c.fail(1, fmt.Errorf("candidate %s: %w", path, err))
 		}
 		if specUnit == "" {
 			specUnit = m.TimeUnit
 		}
 		inputs = append(inputs, output.Input{Name: path, SHA256: checksum(src)})
-		cands = append(cands, infer.Candidate{Name: m.Name, Source: path, Model: m})
+		p.cands = append(p.cands, infer.Candidate{Name: m.Name, Source: path, Model: m})
 	}
 	anyFamily := fo.Rings.Max > 0 || fo.Chords.Max > 0 || fo.Loops.Max > 0 || fo.Chains.Max > 0 || fo.Exhaustive > 0
 	if anyFamily {
 		fo.Plus, fo.Minus = plus, minus
 		fams, err := infer.Families(fo)
 		if err != nil {
-			return c.usage("family options: %v", err)
+			return nil, c.usage("family options: %v", err)
 		}
 		if len(fams) == 0 {
-			return c.usage("the family options make no candidates")
+			return nil, c.usage("the family options make no candidates")
 		}
 		for _, m := range fams {
-			cands = append(cands, infer.Candidate{Name: m.Name, Source: "family", Model: m})
+			p.cands = append(p.cands, infer.Candidate{Name: m.Name, Source: "family", Model: m})
 		}
 	}
-	if len(cands) == 0 {
-		return c.usage("no candidates: give model specs or family options (--rings, --chords, --loops, --chains, --all-graphs)")
+	if len(p.cands) == 0 {
+		return nil, c.usage("no candidates: give model specs or family options (--rings, --chords, --loops, --chains, --all-graphs)")
 	}
-	if names := duplicateNames(cands); names != "" {
-		return c.usage("candidates share the name(s) %s: give each spec its own name", names)
+	if names := duplicateNames(p.cands); names != "" {
+		return nil, c.usage("candidates share the name(s) %s: give each spec its own name", names)
 	}
 	ins, notes, err := ff.instrument(c, rin)
 	if err != nil {
-		return c.fail(1, err)
+		return nil, c.fail(1, err)
 	}
 	if edgeNote != "" {
 		notes = append(notes, edgeNote)
 	}
-	opt := infer.CompareOptions{
+	p.opt = infer.CompareOptions{
 		Fit:           ff.options(ins),
-		Evidence:      infer.EvidenceOptions{Plus: plus, Minus: minus, Level: *rf.level, Windows: windows, Conditions: infer.BoundConditions{MultiEdge: *multi, DeadTime: ins.DeadTime}},
+		Evidence:      infer.EvidenceOptions{Plus: plus, Minus: minus, Level: *rf.level, Windows: windows, Conditions: infer.BoundConditions{MultiEdge: *f.multi, DeadTime: ins.DeadTime}},
 		KnownAffinity: knownVal,
+		Shard:         p.shard,
 	}
-	opt.Fit.Level = *rf.level
-	ctx, stop := interruptible()
-	defer stop()
-	opt.Fit.Context = ctx
-	pb := c.progress(int64(len(cands)), "fitting candidates", false)
-	opt.Progress = func(done, total int, name string) { pb.add(1) }
-	res, err := infer.Compare(cands, rin.d, opt)
-	pb.finish()
-	stop()
-	if err != nil {
-		return c.fail(1, rin.rep.Locate(err))
-	}
+	p.opt.Fit.Level = *rf.level
 	unit, unitNote := c.resolveTimeUnit(specUnit, rin.stamp["time_unit"])
 	notes = append(notes, nonEmpty(unitNote)...)
-	r := c.newReport(inputs, output.SeedOf(*ff.seed), unit)
-	r.Notes = notes
 	if anyFamily {
-		r.Note("%d candidates in all, %d generated by the family options", len(cands), len(cands)-len(c.fs.Args()[1:]))
+		notes = append(notes, fmt.Sprintf("%d candidates in all, %d generated by the family options", len(p.cands), len(p.cands)-len(c.fs.Args()[1:])))
 	}
-	compareTables(r, res, unit)
+	p.setup = partSetup{Tool: "edgewise " + version, Args: stampArgs(c.fs, c.args), Inputs: inputs, Seed: *ff.seed, TimeUnit: string(unit),
+		Options: optionList(c.fs), Notes: notes, Bootstrap: *f.boot}
+	if p.setup.Notes == nil {
+		p.setup.Notes = []string{}
+	}
+	for _, cd := range p.cands {
+		p.setup.Candidates = append(p.setup.Candidates, cd.Name)
+	}
+	return p, -1
+}
+
+// maxBootstrap bounds --bootstrap.
+const maxBootstrap = 1000000
+
+func cmdCompare(args []string, stdout, stderr io.Writer) int {
+	c := newCommand("compare", compareHelp, args, stdout, stderr)
+	f := addCompareFlags(c)
+	if code := c.parse(); code >= 0 {
+		return code
+	}
+	files := output.NewFiles(stdout, *c.force)
+	defer files.Close()
+	if err := files.Claim("-o", *c.out); err != nil {
+		return c.fail(1, err)
+	}
+	if *f.report != "" {
+		cleanup, err := claimReportDir(files, *f.report, *c.force)
+		if err != nil {
+			return c.fail(1, err)
+		}
+		defer cleanup()
+	}
+	p, code := prepareCompare(c, f)
+	if p == nil {
+		return code
+	}
+	ctx, stop := interruptible()
+	defer stop()
+	p.opt.Fit.Context = ctx
+	if p.fits != nil {
+		return bootstrapShard(c, files, p)
+	}
+	total := len(p.cands)
+	if p.sharded {
+		total = 0
+		for i := range p.cands {
+			if p.shard.Selects(i) {
+				total++
+			}
+		}
+	}
+	pb := c.progress(int64(total), "fitting candidates", false)
+	p.opt.Progress = func(done, total int, name string) { pb.add(1) }
+	res, err := infer.Compare(p.cands, p.rin.d, p.opt)
+	pb.finish()
+	if err != nil {
+		return c.fail(1, p.rin.rep.Locate(err))
+	}
+	sum, err := summarize(res)
+	if err != nil {
+		return c.fail(1, err)
+	}
+	part := &comparePart{Format: partFormat, Kind: partCandidates, Shard: p.shard.Index + 1, Of: max(1, p.shard.Of), Setup: p.setup, Summary: sum}
+	if p.sharded {
+		stop()
+		if err := files.Write(*c.out, func(w io.Writer) error { return writePart(w, part) }); err != nil {
+			return c.fail(1, err)
+		}
+		return 0
+	}
+	// A single run goes the way a merge goes: through the part's JSON and
+	// assemble.
+	if part, err = roundTrip(part); err != nil {
+		return c.fail(1, err)
+	}
+	parts := []*comparePart{part}
+	setup, v, err := assemble(parts, true)
+	if err != nil {
+		return c.fail(1, err)
+	}
+	if p.setup.Bootstrap > 0 && v.Interrupted {
+		v.Boot = &bootView{Note: "the bootstrap was not run: the comparison was interrupted"}
+	} else if p.setup.Bootstrap > 0 {
+		bp, why, err := runBootstrap(c, v, p, infer.Shard{})
+		switch {
+		case err != nil:
+			return c.fail(1, err)
+		case bp == nil:
+			v.Boot = &bootView{Note: why}
+		default:
+			if bp, err = roundTrip(bp); err != nil {
+				return c.fail(1, err)
+			}
+			if setup, v, err = assemble(append(parts, bp), true); err != nil {
+				return c.fail(1, err)
+			}
+		}
+	}
+	stop()
+	r := compareReport(setup, v)
 	if err := c.emitReport(files, r); err != nil {
 		return c.fail(1, err)
+	}
+	if *f.report != "" {
+		if err := writeReportDir(files, *f.report, r, v, p); err != nil {
+			return c.fail(1, err)
+		}
 	}
 	return 0
 }
@@ -231,136 +396,4 @@ func duplicateNames(cs []infer.Candidate) string {
 		seen[c.Name] = true
 	}
 	return strings.Join(dup, ", ")
-}
-
-// compareTables adds the ranking, the consistency checks, the data's
-// evidence and the nested tests.
-func compareTables(r *output.Report, res *infer.Ranking, u output.TimeUnit) {
-	ev := res.Evidence
-	rk := output.NewTable("ranking", "Ranking of the candidates (best BIC first)", "model",
-		output.Col("verdict", "verdict", ""), output.Col("free", "free", ""), output.Col("k", "k", ""),
-		output.Col("log_likelihood", "ln L", "nats"), output.Col("AIC", "AIC", ""), output.Col("AICc", "AICc", ""),
-		output.Col("BIC", "BIC", ""), output.Col("delta_BIC", "ΔBIC", ""), output.Col("weight", "weight", ""))
-	for _, c := range res.Ranked {
-		verdict := "consistent"
-		if c.RuledOut() {
-			verdict = "ruled out"
-		}
-		if c.Fit == nil {
-			why := c.Err
-			if c.Impossible != nil {
-				why = "records impossible under this scheme"
-			} else {
-				verdict = "fit failed"
-			}
-			u := output.Undefined(why)
-			rk.Add(output.Key(c.Name), c.Name, output.Text(verdict), output.Count(len(c.Model.Free())), u, u, u, u, u, u, u)
-			continue
-		}
-		rk.Add(output.Key(c.Name), c.Name, output.Text(verdict), output.Count(len(c.Fit.Free)), output.Count(c.Fit.Effective()),
-			output.Fixed(c.Fit.LogLik, 2), output.Fixed(c.AIC, 2), output.Fixed(c.AICc, 2), output.Fixed(c.BIC, 2),
-			output.Fixed(c.DeltaBIC, 2), output.Num(c.Weight))
-	}
-	rk.Note("k: parameter combinations the data determine (free parameters minus flat directions); n = %d gaps; weight: Akaike weight exp(-ΔAIC/2), normalised", gapsOf(res))
-	r.Add(rk)
-
-	ct := output.NewTable("consistency", "Consistency with the records (p-values; Holm-adjusted within each model)", "model",
-		output.Col("gof_p", "gap fit p", ""), output.Col("F_model", "model F", "k_BT"), output.Col("F_p", "F p", ""),
-		output.Col("pn_p", "P_n(c) p", ""), output.Col("sigma", "model sigma", u.Entropy()), output.Col("sigma_p", "sigma ≥ bound p", ""),
-		output.Col("rules", "structural rules", ""))
-	for _, c := range res.Ranked {
-		if c.Consistency == nil {
-			continue
-		}
-		cs := c.Consistency
-		gof, fp, pnp, sp := output.Undefined("not tested"), output.Undefined("not tested"), output.Undefined("not tested"), output.Undefined("no valid bound")
-		for _, ch := range cs.Checks {
-			switch {
-			case ch.Name == "gap goodness of fit":
-				gof = output.P(ch.Adjusted)
-			case ch.Name == "effective affinity F":
-				fp = output.P(ch.Adjusted)
-			case strings.HasPrefix(ch.Name, "count-stopped"):
-				if pnp.Kind != output.KindP || ch.Adjusted < pnp.Value {
-					pnp = output.P(ch.Adjusted)
-				}
-			case strings.HasPrefix(ch.Name, "sigma against"):
-				sp = output.P(ch.Adjusted)
-			}
-		}
-		var rules []string
-		if cs.ShapeRuledOut {
-			rules = append(rules, "shape")
-		}
-		if cs.MarkovRuledOut {
-			rules = append(rules, "Markov order")
-		}
-		rule := "pass"
-		if len(rules) > 0 {
-			rule = "out: " + strings.Join(rules, ", ")
-		}
-		ct.Add(output.Key(c.Name), c.Name, gof, output.Num(cs.F), fp, pnp, output.Num(cs.Sigma), sp, output.Text(rule))
-	}
-	ct.Note("P_n(c) p: the smallest over the window lengths; structural rules: shape (the data's psi(++) and psi(--) differ while the model's ratio is constant in t) and Markov order (labels not first order while each of the model's labels sits on one directed edge)")
-	r.Add(ct)
-
-	et := output.NewTable("evidence", "What the records say on their own", "quantity", output.Col("value", "value", ""), output.Col("p", "p", ""), output.Col("note", "note", ""))
-	et.Add("F", "effective affinity F (k_BT)", output.Num(ev.F.Value), output.Empty(), output.Text(fmt.Sprintf("%s interval [%.4g, %.4g]", pct(ev.Level), ev.F.Lo, ev.F.Hi)))
-	if ev.Shape != nil {
-		et.Add("shape", "shape test of the ++ and -- gaps (KS distance)", output.Num(ev.Shape.D), output.P(ev.ShapeP), output.Text(yesNo(ev.ShapeDiffers, "shapes differ: rings and every scheme without a driven cycle off the visible edge are ruled out", "shapes agree")))
-	}
-	et.Add("markov", "Markov-order test of the labels (G)", output.Num(ev.Markov.Stat), output.P(ev.Markov.P), output.Text(yesNo(ev.NotMarkov, "not first-order Markov: schemes with one directed edge per label are ruled out", "first order not rejected")))
-	if name, b, ok := ev.Bound(); ok {
-		et.Add("sigma_bound", "largest valid lower bound on sigma: "+name+" ("+u.Entropy()+")", output.Num(b.Value), output.Empty(), output.Text(fmt.Sprintf("%s interval [%.4g, %.4g]", pct(ev.Level), b.Lo, b.Hi)))
-	} else {
-		why := ev.BoundsReason
-		if why == "" {
-			why = "not computed"
-		}
-		et.Add("sigma_bound", "lower bound on sigma", output.Undefined(why), output.Empty(), output.Empty())
-	}
-	r.Add(et)
-
-	if len(res.Nested) > 0 {
-		nt := output.NewTable("nested", "Nested pairs: likelihood-ratio tests (Holm over the pairs)", "pair",
-			output.Col("LR", "2 ln LR", ""), output.Col("df", "df", ""), output.Col("boundary", "rates at 0", ""),
-			output.Col("p", "p", ""), output.Col("p_holm", "Holm p", ""), output.Col("how", "nesting", ""))
-		for _, t := range res.Nested {
-			nt.Add(output.Key(t.Small+"_in_"+t.Large), t.Small+" in "+t.Large, output.Num(t.LR), output.Count(t.DF), output.Count(t.Boundary), output.P(t.P), output.P(t.Adjusted), output.Text(t.How))
-		}
-		r.Add(nt)
-	}
-	for _, c := range res.Ranked {
-		for _, why := range c.Reasons() {
-			r.Note("%s is ruled out: %s", c.Name, why)
-		}
-		if c.Fit == nil && c.Impossible == nil {
-			r.Note("%s: fit failed: %s", c.Name, c.Err)
-		}
-		if c.Fit != nil && c.Fit.Ident != nil {
-			for _, s := range c.Fit.Ident.Statements {
-				r.Note("%s: %s", c.Name, s)
-			}
-		}
-	}
-	if res.Interrupted {
-		r.Note("interrupted: only the candidates finished before the interrupt are shown")
-	}
-	r.Note("a candidate consistent with the records is not thereby true, nor the only one that is; the gap goodness-of-fit test is conservative with fitted parameters")
-}
-
-func gapsOf(res *infer.Ranking) int {
-	for _, c := range res.Ranked {
-		if c.Fit != nil {
-			return c.Fit.Gaps
-		}
-	}
-	return 0
-}
-
-func yesNo(b bool, yes, no string) string {
-	if b {
-		return yes
-	}
-	return no
 }

@@ -48,6 +48,8 @@ func run(args []string, stdout, stderr io.Writer) int {
 		return cmdCompare(args[1:], stdout, stderr)
 	case "plan":
 		return cmdPlan(args[1:], stdout, stderr)
+	case "merge":
+		return cmdMerge(args[1:], stdout, stderr)
 	case "help", "-h", "--help":
 		if len(args) > 1 && args[0] == "help" {
 			if _, ok := commands[args[1]]; ok {
@@ -81,6 +83,7 @@ Commands:
   fit       maximum-likelihood fit of one hidden network to records, with intervals
   compare   fit and rank candidate networks; rule out the inconsistent ones
   plan      how many events tell one scheme from another: KL rate, power
+  merge     join the part files of a compare run in shards into its report
   version   print the tool version
   help      show this help; "edgewise help CMD" is "edgewise CMD --help"
 
@@ -117,7 +120,7 @@ func parseFlags(fs *pflag.FlagSet, args []string) int {
 }
 
 // commands lists the subcommands, for "edgewise help CMD".
-var commands = map[string]bool{"describe": true, "simulate": true, "inspect": true, "fluct": true, "predict": true, "fit": true, "compare": true, "plan": true}
+var commands = map[string]bool{"describe": true, "simulate": true, "inspect": true, "fluct": true, "predict": true, "fit": true, "compare": true, "plan": true, "merge": true}
 
 // loadModel reads and parses a model spec and builds its network at the
 // start values. src is returned for the checksum stamped on outputs.
