@@ -1,6 +1,7 @@
 package infer
 
 import (
+	"cmp"
 	"context"
 	"errors"
 	"fmt"
@@ -415,7 +416,7 @@ func ProfileQuantity(res *FitResult, d *likelihood.Data, name string, o Quantity
 					ts = append(ts, t)
 				}
 			}
-			slices.SortFunc(ts, func(a, b float64) int { return cmpF(dir*a, dir*b) })
+			slices.SortFunc(ts, func(a, b float64) int { return cmp.Compare(dir*a, dir*b) })
 			sd := newSide(pr, t0, eq, half)
 			for _, t := range ts {
 				sd.at(o.Context, t)
@@ -441,7 +442,7 @@ func ProfileQuantity(res *FitResult, d *likelihood.Data, name string, o Quantity
 	if eq != nil && !slices.ContainsFunc(out.Points, func(p QuantityPoint) bool { return p.Route == RouteEquilibrium }) {
 		out.Points = append(out.Points, *eq)
 	}
-	slices.SortStableFunc(out.Points, func(a, b QuantityPoint) int { return cmpF(a.Value, b.Value) })
+	slices.SortStableFunc(out.Points, func(a, b QuantityPoint) int { return cmp.Compare(a.Value, b.Value) })
 	out.HigherMax = pr.higher
 	if o.Context.Err() != nil {
 		out.Interrupted = true
@@ -657,17 +658,6 @@ func (sd *side) bracket(ctx context.Context, ta, ra, tb, rb, z float64, budget i
 		return ta
 	}
 	return ta + (z-ra)*(tb-ta)/(rb-ra)
-}
-
-// cmpF orders floats.
-func cmpF(a, b float64) int {
-	switch {
-	case a < b:
-		return -1
-	case a > b:
-		return 1
-	}
-	return 0
 }
 
 func dot(a, b []float64) float64 {
