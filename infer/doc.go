@@ -121,4 +121,20 @@
 // Kolmogorov-Smirnov and Anderson-Darling tests (goodness.go,
 // onesample.go); with parameters fitted to the same data the test is
 // conservative (see goodness.go).
+//
+// # Least dissipation within a scheme
+//
+// ProfileQuantity gives the profile likelihood of a derived quantity q of a
+// fitted model (sigma, F under the instrument, a cycle affinity),
+//
+//	ln L_p(s) = max { ln L(theta) : q(theta) = s },
+//
+// and its interval {s : 2 [ln L_max - ln L_p(s)] <= chi2_1 quantile}. The
+// lower end for sigma is the least dissipation the data do not reject
+// within the scheme; when the scheme's best equilibrium member (every cycle
+// affinity 0) is not rejected it is 0, and the data do not prove that the
+// system is driven. Affinities are held exactly by affinity constraints on
+// a copy of the model; sigma and F by an augmented Lagrangian with the
+// exact gradients of the sensitivity packages (leastsigma.go,
+// lagrangian.go, affinityroute.go).
 package infer

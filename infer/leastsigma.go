@@ -151,7 +151,8 @@ type QuantityProfile struct {
 	LogLikMax    float64
 	Level        float64
 	Threshold    float64 // chi-square(1) quantile of the level
-	// Lower and Upper bound the interval. LowerOpen (UpperOpen): the
+	// Lower and Upper bound the interval (NaN when only the values of
+	// QuantityProfileOptions.At were asked for). LowerOpen (UpperOpen): the
 	// profile stayed within the threshold up to the end of the search on
 	// that side, so the data set no limit there; Lower (Upper) is then the
 	// last value reached (0 for sigma when ZeroNotRejected).
@@ -328,6 +329,13 @@ func ProfileQuantity(res *FitResult, d *likelihood.Data, name string, o Quantity
 	if math.IsNaN(q0) || math.IsInf(q0, 0) {
 		return nil, fmt.Errorf("quantity profile of %s: the quantity is %v at the fit's maximum (a one-way edge makes sigma and the affinities through it infinite): it has no profile", name, q0)
 	}
+	if row.Kind == models.KindEntropy {
+		for _, s := range o.At {
+			if s < 0 {
+				return nil, fmt.Errorf("quantity profile of %s: value %v: sigma is never negative", name, s)
+			}
+		}
+	}
 	pr := &profiler{res: res, ob: ob, q: qf, q0: q0, name: name, sqrt: row.Kind == models.KindEntropy, lopt: lopt, kinds: paramKinds(m), o: o, prog: newProgress(nil)}
 	if o.Progress != nil {
 		pr.prog = newProgress(func(_ string, done, _ int) { o.Progress(done) })
@@ -408,6 +416,7 @@ func ProfileQuantity(res *FitResult, d *likelihood.Data, name string, o Quantity
 	var sides [2]sideOut
 	half := max(1, o.Workers/2)
 	if len(o.At) > 0 {
+		out.Lower, out.Upper = math.NaN(), math.NaN()
 		parallel(2, 2, func(k int) {
 			dir := 1.0 - 2*float64(k)
 			var ts []float64

@@ -306,6 +306,9 @@ func TestQuantityProfileErrors(t *testing.T) {
 	if _, err := ProfileQuantity(res, d, "sigma", QuantityProfileOptions{At: []float64{math.NaN()}}); err == nil {
 		t.Error("NaN value accepted")
 	}
+	if _, err := ProfileQuantity(res, d, "sigma", QuantityProfileOptions{At: []float64{-1}}); err == nil || !strings.Contains(err.Error(), "never negative") {
+		t.Errorf("negative sigma: %v", err)
+	}
 	if _, err := ProfileQuantity(res, d, "sigma", QuantityProfileOptions{Level: 1.5}); err == nil {
 		t.Error("level 1.5 accepted")
 	}

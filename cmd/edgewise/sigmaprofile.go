@@ -98,6 +98,9 @@ func quantityProfiles(c *command, files *output.Files, r *output.Report, res *in
 		for _, n := range p.Notes {
 			r.Note("profile of %s: %s", p.Name, n)
 		}
+		if p.Interrupted {
+			r.Note("profile of %s: interrupted; the interval is where the search had got to, not final", p.Name)
+		}
 	}
 	r.Add(pointsTable(profs, u))
 	if *f.plot == "" {
