@@ -251,8 +251,9 @@ type profiler struct {
 	q      quantityFn
 	q0     float64 // q at the fit's maximum
 	name   string
-	sqrt   bool    // T = sqrt (sigma)
-	tau    float64 // scale of T(q): its standard error at the maximum
+	sqrt   bool                      // T = sqrt (sigma)
+	branch func(x []float64) float64 // the sign of sqrt(sigma) at x, nil: +1 (branchSign)
+	tau    float64                   // scale of T(q): its standard error at the maximum
 	lopt   likelihood.Options
 	kinds  []models.ParamKind
 	affine *affineRoute // exact route of a cycle affinity, nil otherwise
@@ -381,7 +382,12 @@ func ProfileQuantity(res *FitResult, d *likelihood.Data, name string, o Quantity
 			pr.affine, out.Method = ar, RouteAffinity
 		}
 	case row.Kind == models.KindEntropy:
-		ep, none, allZero, err := pr.equilibrium(o.Context, d)
+		ep, none, allZero, free, err := pr.equilibrium(o.Context, d)
+		if free == 1 && err == nil && none == "" {
+			if pr.branch, err = branchSign(m, res.X); err != nil {
+				return nil, fmt.Errorf("quantity profile of %s: %w", name, err)
+			}
+		}
 		if allZero || len(net.CycleBasis()) == 0 {
 			out.Fixed, out.Lower, out.Upper, out.Method = true, 0, 0, "fixed by the scheme"
 			out.Notes = append(out.Notes, "every cycle of the scheme has affinity 0 (no cycle, or the spec holds each at 0): sigma = 0 for every parameter value")
@@ -467,7 +473,16 @@ func ProfileQuantity(res *FitResult, d *likelihood.Data, name string, o Quantity
 	return out, nil
 }
 
-// tr is T: sqrt for sigma, the identity otherwise; inv its inverse.
+// sign is the branch of T at x (branchSign), +1 without one.
+func (pr *profiler) sign(x []float64) float64 {
+	if pr.branch == nil {
+		return 1
+	}
+	return pr.branch(x)
+}
+
+// tr is T: sqrt for sigma, the identity otherwise; inv its inverse (on the
+// branch T >= 0).
 func (pr *profiler) tr(q float64) float64 {
 	if pr.sqrt {
 		return math.Sqrt(math.Max(q, 0))

@@ -80,6 +80,22 @@ func lsCheckPoints(t *testing.T, p *QuantityProfile, gaps int) {
 	}
 }
 
+// lsCheckUnimodal checks that ln L_p rises up to the estimate and falls
+// after it (to 1e-4 nats): true of every profile in these tests, whose
+// likelihoods have one maximum; a point below its outer neighbour is a
+// constrained maximum the search missed (e.g. one on the branch of
+// reversed driving).
+func lsCheckUnimodal(t *testing.T, p *QuantityProfile) {
+	t.Helper()
+	for i := 1; i < len(p.Points); i++ {
+		a, b := p.Points[i-1], p.Points[i]
+		up := b.Value <= p.Estimate
+		if (up && b.LogLik < a.LogLik-1e-4) || (!up && a.Value >= p.Estimate && b.LogLik > a.LogLik+1e-4) {
+			t.Errorf("%s: ln L_p %.6f at %.6g then %.6f at %.6g: not unimodal", p.Name, a.LogLik, a.Value, b.LogLik, b.Value)
+		}
+	}
+}
+
 // For a unicyclic ring seen on one edge with perfect detection, F equals
 // the cycle affinity for every parameter value (Polettini and Esposito,
 // PRL 119, 240601 (2017); design notes section 8), so the profile of F
@@ -173,6 +189,7 @@ func TestQuantityProfileSigmaIsJTimesAffinity(t *testing.T) {
 		t.Errorf("notes do not say that the scheme has no equilibrium member: %q", ps.Notes)
 	}
 	lsCheckPoints(t, ps, res.Gaps)
+	lsCheckUnimodal(t, ps)
 	pj, err := ProfileQuantity(res, d, "J[0:A-B]", QuantityProfileOptions{Workers: 2})
 	if err != nil {
 		t.Fatal(err)
@@ -219,37 +236,55 @@ func mustStationary(t *testing.T, net *models.Network) []float64 {
 	return pi
 }
 
-// At detailed balance (records from a ring whose rates satisfy
-// Kolmogorov's criterion, so sigma = 0; design notes section 8) the free
-// ring's best equilibrium member is within the threshold (the deviance of
-// a true null is chi-square(1)-distributed only asymptotically and the
-// equilibrium member is the ring with one constraint, so it is rejected
-// at 5% in about 5% of data sets: the seed is fixed), the interval of
-// sigma reaches 0 and the profile says so.
+// At detailed balance (records from the shipped three-state ring with kac
+// raised to 45, so that kab kbc kca = 3*2*1.5 = 9 = kba kcb kac =
+// 0.5*0.4*45: Kolmogorov's criterion, sigma = 0; design notes section 8)
+// the ring's best equilibrium member is within the threshold (the
+// deviance of a true null is chi-square(1) only asymptotically and is
+// above the threshold in 5% of data sets: the seeds are fixed), the
+// interval of sigma reaches 0 and the profile says so. The profile is
+// unimodal: with one cycle the search under sqrt(sigma) = t could step
+// across the cusp of sqrt(sigma) at A = 0 onto the branch of reversed
+// driving, which these two seeds did before the signed root
+// (branchSign).
 func TestLeastSigmaAtDetailedBalance(t *testing.T) {
-	// kab kbc kca = 3*2*1.5 = 9 = kba kcb kac = 0.5*0.4*45.
-	spec := strings.Replace(lsRing3Spec, "[param.kac]\nvalue = 0.6", "[param.kac]\nvalue = 45.0", 1)
-	res, d := lsFit(t, spec, 3, 4000)
-	net, _ := parseSpec(t, spec).Network(parseSpec(t, spec).Start())
-	if a := recRingAffinity(t, net); math.Abs(a) > 1e-12 {
-		t.Fatalf("the data's ring has affinity %g, want 0", a)
+	m := readSpec(t, "../testdata/ring3.toml")
+	for i := range m.Params {
+		if m.Params[i].Name == "kac" {
+			m.Params[i].Value = 45
+		}
 	}
-	p, err := ProfileQuantity(res, d, "sigma", QuantityProfileOptions{Workers: 2})
+	net, err := m.Network(m.Start())
 	if err != nil {
 		t.Fatal(err)
 	}
-	lsCheckPoints(t, p, res.Gaps)
-	if p.Equilibrium == nil || !p.ZeroNotRejected {
-		t.Fatalf("equilibrium member %+v not within the threshold %.3f", p.Equilibrium, p.Threshold)
+	if a := recRingAffinity(t, net); math.Abs(a) > 1e-12 {
+		t.Fatalf("the data's ring has affinity %g, want 0", a)
 	}
-	if p.Lower != 0 || !p.LowerOpen {
-		t.Errorf("least sigma %g (open %v), want 0", p.Lower, p.LowerOpen)
-	}
-	if math.Abs(p.Equilibrium.Achieved) > 1e-12 {
-		t.Errorf("the equilibrium member has sigma %g", p.Equilibrium.Achieved)
-	}
-	if !(p.Upper > p.Estimate) || p.UpperOpen {
-		t.Errorf("upper end %g (open %v) for estimate %g", p.Upper, p.UpperOpen, p.Estimate)
+	for _, seed := range []uint64{1, 4} {
+		d := truthData(t, m, seed, 1, 3000)
+		res, err := Fit(m, d, FitOptions{Starts: 2, Seed: 1, Workers: 2})
+		if err != nil {
+			t.Fatal(err)
+		}
+		p, err := ProfileQuantity(res, d, "sigma", QuantityProfileOptions{Workers: 2})
+		if err != nil {
+			t.Fatal(err)
+		}
+		lsCheckPoints(t, p, res.Gaps)
+		lsCheckUnimodal(t, p)
+		if p.Equilibrium == nil || !p.ZeroNotRejected {
+			t.Fatalf("seed %d: equilibrium member %+v not within the threshold %.3f", seed, p.Equilibrium, p.Threshold)
+		}
+		if p.Lower != 0 || !p.LowerOpen {
+			t.Errorf("seed %d: least sigma %g (open %v), want 0", seed, p.Lower, p.LowerOpen)
+		}
+		if math.Abs(p.Equilibrium.Achieved) > 1e-12 {
+			t.Errorf("seed %d: the equilibrium member has sigma %g", seed, p.Equilibrium.Achieved)
+		}
+		if !(p.Upper > p.Estimate) || p.UpperOpen {
+			t.Errorf("seed %d: upper end %g (open %v) for estimate %g", seed, p.Upper, p.UpperOpen, p.Estimate)
+		}
 	}
 }
 
@@ -277,6 +312,7 @@ value = 0.8
 		t.Fatal(err)
 	}
 	lsCheckPoints(t, p, res.Gaps)
+	lsCheckUnimodal(t, p)
 	gap := math.Inf(1)
 	for _, q := range p.Points {
 		s, _, err := likelihood.ModelSensitivity(res.Model, q.X, likelihood.Instrument{})

@@ -291,7 +291,7 @@ func dissipationNotes(scheme string, p *infer.QuantityProfile, bs *boundSet, u o
 	case p.Fixed:
 		out = append(out, fmt.Sprintf("sigma of scheme %s is fixed by the scheme (%s)", scheme, p.Method))
 	case p.ZeroNotRejected:
-		out = append(out, fmt.Sprintf("the data do not prove that the system is driven, within scheme %s: its best equilibrium member (sigma = 0) is not rejected at %s (2 [ln L_max - ln L] = %.3g); the least sigma at that level is 0", scheme, pct(p.Level), p.Equilibrium.Deviance))
+		out = append(out, fmt.Sprintf("the data do not prove that the system is driven, within scheme %s: its best equilibrium member (sigma = 0) is not rejected at %s confidence (2 [ln L_max - ln L] = %.3g, below %.3g); the least sigma at that level is 0", scheme, pct(p.Level), p.Equilibrium.Deviance, p.Threshold))
 	case p.LowerOpen:
 		out = append(out, fmt.Sprintf("within scheme %s the data set no lower limit on sigma down to %s %s", scheme, num(p.Lower), u.Entropy()))
 	default:
