@@ -2,7 +2,6 @@ package infer
 
 import (
 	"context"
-	"errors"
 	"fmt"
 	"math"
 	"slices"
@@ -23,16 +22,6 @@ type affineRoute struct {
 	k     int
 }
 
-// errFixedCycle reports a cycle whose affinity the model already fixes.
-type errFixedCycle struct {
-	cycle CyclePath
-	value float64
-}
-
-func (e *errFixedCycle) Error() string {
-	return fmt.Sprintf("the spec's constraints hold cycle %s at %.6g k_BT", e.cycle, e.value)
-}
-
 // newAffineRoute prepares the exact route of the affinity of cycle ci of
 // net's cycle basis (net is m's network at any parameter values); fixed
 // is true when m's own constraints or fixed rates already fix it.
@@ -42,24 +31,24 @@ func newAffineRoute(m *models.Model, net *models.Network, ci int) (*affineRoute,
 		return nil, false, fmt.Errorf("no cycle %d in the basis", ci)
 	}
 	states, edges := net.CyclePath(cs[ci])
-	mc, idx, err := withCycleAffinities(m, []CyclePath{{States: states, Edges: edges}}, []float64{net.Affinity(cs[ci])})
-	var fe *errFixedCycle
-	if errors.As(err, &fe) {
-		return nil, true, nil
-	}
+	mc, idx, _, err := withCycleAffinities(m, []CyclePath{{States: states, Edges: edges}}, []float64{net.Affinity(cs[ci])})
 	if err != nil {
 		return nil, false, err
+	}
+	if idx[0] < 0 {
+		return nil, true, nil
 	}
 	return &affineRoute{model: mc, k: idx[0]}, false, nil
 }
 
 // withCycleAffinities returns a copy of m with each cycle held at its
-// value by a new affinity constraint, and the index in Affinities of each
-// new constraint. The solved rate is chosen as TightCoupling chooses it
-// (chooseSolve: hidden rates first, a well-conditioned solved block). A
-// cycle that m's constraints or fixed rates already fix gives an
-// *errFixedCycle with the value they fix.
-func withCycleAffinities(m *models.Model, cycles []CyclePath, values []float64) (*models.Model, []int, error) {
+// value by a new affinity constraint, the index in Affinities of each new
+// constraint, and for each cycle the value the constraints (m's and the
+// ones added before it) or fixed rates already fix it at (NaN when they do
+// not; its index is then -1 and no constraint is added for it). The solved
+// rate is chosen as TightCoupling chooses it (chooseSolve: hidden rates
+// first, a well-conditioned solved block).
+func withCycleAffinities(m *models.Model, cycles []CyclePath, values []float64) (*models.Model, []int, []float64, error) {
 	params := map[string]models.Param{}
 	for _, p := range m.Params {
 		params[p.Name] = p
@@ -76,16 +65,18 @@ func withCycleAffinities(m *models.Model, cycles []CyclePath, values []float64) 
 	for _, a := range m.Affinities {
 		c, err := cycleCoef(m, CyclePath{a.Cycle, a.Edges})
 		if err != nil {
-			return nil, nil, err
+			return nil, nil, nil, err
 		}
 		rows, vals, solved = append(rows, c), append(vals, a.Value), append(solved, a.Solve)
 	}
 	out := cloneModel(m)
 	idx := make([]int, len(cycles))
+	implied := make([]float64, len(cycles))
 	for i, cyc := range cycles {
+		idx[i], implied[i] = -1, math.NaN()
 		coef, err := cycleCoef(m, cyc)
 		if err != nil {
-			return nil, nil, err
+			return nil, nil, nil, err
 		}
 		// Fixed rates enter as constants: a cycle of fixed rates only is
 		// fixed at its value.
@@ -94,18 +85,20 @@ func withCycleAffinities(m *models.Model, cycles []CyclePath, values []float64) 
 			free = free || !params[name].Fixed
 		}
 		if !free {
-			return nil, nil, &errFixedCycle{cycle: cyc, value: fixedAffinity(coef, params)}
+			implied[i] = fixedAffinity(coef, params)
+			continue
 		}
 		if y, ok := inSpan(rows, coef); ok {
 			v := 0.0
 			for k, w := range y {
 				v += w * vals[k]
 			}
-			return nil, nil, &errFixedCycle{cycle: cyc, value: v}
+			implied[i] = v
+			continue
 		}
 		s := chooseSolve(m, cyc, coef, rows, solved, params, visible)
 		if s == "" {
-			return nil, nil, fmt.Errorf("model %s: no free rate of cycle %s can be solved from its affinity alongside the model's other constraints", m.Name, cyc)
+			return nil, nil, nil, fmt.Errorf("model %s: no free rate of cycle %s can be solved from its affinity alongside the model's other constraints", m.Name, cyc)
 		}
 		rows, vals, solved = append(rows, coef), append(vals, values[i]), append(solved, s)
 		idx[i] = len(out.Affinities)
@@ -120,9 +113,9 @@ func withCycleAffinities(m *models.Model, cycles []CyclePath, values []float64) 
 	}
 	parsed, err := roundTrip(out)
 	if err != nil {
-		return nil, nil, fmt.Errorf("model %s with its cycle affinities held: %w", m.Name, err)
+		return nil, nil, nil, fmt.Errorf("model %s with its cycle affinities held: %w", m.Name, err)
 	}
-	return parsed, idx, nil
+	return parsed, idx, implied, nil
 }
 
 // fixedAffinity is the affinity of a cycle whose rates are all fixed.
@@ -195,39 +188,37 @@ func localFit(ctx context.Context, mc *models.Model, d *likelihood.Data, lopt li
 
 // equilibrium fits the scheme's best equilibrium member (every cycle of
 // the basis held at affinity 0) from several starts, the first at the
-// fit's maximum. It returns nil and the reason when the scheme has none,
-// and allZero when the spec itself holds every cycle at 0.
-func (pr *profiler) equilibrium(ctx context.Context, d *likelihood.Data) (p *QuantityPoint, none string, allZero bool, err error) {
+// fit's maximum. It returns nil and the reason when the scheme has none;
+// allZero when the spec itself holds every cycle at 0; and free, the
+// number of constraints it added (the dimension of the affinities the
+// scheme leaves free).
+func (pr *profiler) equilibrium(ctx context.Context, d *likelihood.Data) (p *QuantityPoint, none string, allZero bool, free int, err error) {
 	m := pr.res.Model
 	net, err := m.Network(pr.res.X)
 	if err != nil {
-		return nil, "", false, err
+		return nil, "", false, 0, err
 	}
 	var paths []CyclePath
 	for _, c := range net.CycleBasis() {
 		states, edges := net.CyclePath(c)
-		cp := CyclePath{States: states, Edges: edges}
-		// Cycles the spec already fixes: at 0 they are kept as they are;
-		// at any other value the scheme has no equilibrium member.
-		_, _, err := withCycleAffinities(m, []CyclePath{cp}, []float64{0})
-		var fe *errFixedCycle
-		if errors.As(err, &fe) {
-			if math.Abs(fe.value) > 1e-9 {
-				return nil, fmt.Sprintf("%s: the scheme has no equilibrium member, so sigma > 0 for every parameter value; the lower end of its interval is where the data reject it", fe), false, nil
-			}
-			continue
-		}
-		if err != nil {
-			return nil, "", false, err
-		}
-		paths = append(paths, cp)
+		paths = append(paths, CyclePath{States: states, Edges: edges})
 	}
-	if len(paths) == 0 {
-		return nil, "", true, nil
-	}
-	mc, _, err := withCycleAffinities(m, paths, make([]float64, len(paths)))
+	mc, idx, implied, err := withCycleAffinities(m, paths, make([]float64, len(paths)))
 	if err != nil {
-		return nil, "", false, err
+		return nil, "", false, 0, err
+	}
+	for i, v := range implied {
+		if math.Abs(v) > 1e-9 { // NaN: not fixed
+			return nil, fmt.Sprintf("the spec's constraints hold cycle %s at %.6g k_BT: the scheme has no equilibrium member, so sigma > 0 for every parameter value; the lower end of its interval is where the data reject it", paths[i], v), false, 0, nil
+		}
+	}
+	for _, k := range idx {
+		if k >= 0 {
+			free++
+		}
+	}
+	if free == 0 {
+		return nil, "", true, 0, nil
 	}
 	byName := map[string]float64{}
 	for j, n := range pr.res.Free {
@@ -241,11 +232,11 @@ func (pr *profiler) equilibrium(ctx context.Context, d *likelihood.Data) (p *Qua
 	fo := FitOptions{Likelihood: pr.lopt, Starts: pr.o.Starts, Seed: pr.res.Options.Seed, Workers: pr.o.Workers, MaxIter: pr.res.Options.MaxIter, ExploreGaps: pr.res.Options.ExploreGaps, Level: pr.o.Level, Context: ctx}
 	fit, err := Fit(mc, d, fo)
 	if err != nil {
-		return nil, "", false, fmt.Errorf("equilibrium member: %w", err)
+		return nil, "", false, free, fmt.Errorf("equilibrium member: %w", err)
 	}
 	vals, err := mc.Values(fit.X)
 	if err != nil {
-		return nil, "", false, err
+		return nil, "", false, free, err
 	}
 	x := make([]float64, len(pr.res.Free))
 	for j, n := range pr.res.Free {
@@ -262,5 +253,45 @@ func (pr *profiler) equilibrium(ctx context.Context, d *likelihood.Data) (p *Qua
 	for _, o := range fit.Optima {
 		pt.Evals += o.Evals
 	}
-	return &pt, "", false, nil
+	return &pt, "", false, free, nil
+}
+
+// branchSign returns the sign of the dissipation branch at free
+// parameters x for a scheme whose free cycle affinities span one
+// dimension: the sign of l(x) = sum_c J_c A_c(x), with J_c the cycle
+// currents (chord currents) at the fit's maximum, so that l = sigma > 0
+// there. With one free affinity direction sigma vanishes only where l does,
+// and sign(l) sqrt(sigma) is smooth through 0 (about a constant times the
+// affinity), whereas sqrt(sigma) has a cusp there that a search under the
+// constraint sqrt(sigma) = t can step across, onto the branch of reversed
+// driving.
+func branchSign(m *models.Model, x0 []float64) (func(x []float64) float64, error) {
+	net, err := m.Network(x0)
+	if err != nil {
+		return nil, err
+	}
+	pi, err := net.Stationary()
+	if err != nil {
+		return nil, err
+	}
+	cur := net.Currents(pi)
+	cycles := net.CycleBasis()
+	jc := make([]float64, len(cycles))
+	for i, c := range cycles {
+		jc[i] = cur[c.Chord]
+	}
+	return func(x []float64) float64 {
+		n, err := m.Network(x)
+		if err != nil {
+			return 1
+		}
+		l := 0.0
+		for i, c := range cycles {
+			l += jc[i] * n.Affinity(c)
+		}
+		if l < 0 {
+			return -1
+		}
+		return 1
+	}, nil
 }

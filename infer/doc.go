@@ -169,4 +169,20 @@
 // nested pairs by the likelihood ratio, with the chi-bar-square mixture
 // when rates are tested at zero (Self and Liang, JASA 82, 605 (1987)). A
 // consistent candidate is not thereby true, nor the only one.
+//
+// # Least dissipation within a scheme
+//
+// ProfileQuantity gives the profile likelihood of a derived quantity q of a
+// fitted model (sigma, F under the instrument, a cycle affinity),
+//
+//	ln L_p(s) = max { ln L(theta) : q(theta) = s },
+//
+// and its interval {s : 2 [ln L_max - ln L_p(s)] <= chi2_1 quantile}. The
+// lower end for sigma is the least dissipation the data do not reject
+// within the scheme; when the scheme's best equilibrium member (every cycle
+// affinity 0) is not rejected it is 0, and the data do not prove that the
+// system is driven. Affinities are held exactly by affinity constraints on
+// a copy of the model; sigma and F by an augmented Lagrangian with the
+// exact gradients of the sensitivity packages (leastsigma.go,
+// lagrangian.go, affinityroute.go).
 package infer

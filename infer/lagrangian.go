@@ -93,9 +93,10 @@ func (pr *profiler) alTerm(t, lambda, mu float64) func(u []float64) (float64, []
 		if err != nil {
 			return math.NaN(), nil, err
 		}
-		c := (pr.tr(q) - t) / pr.tau
+		sg := pr.sign(x)
+		c := (sg*pr.tr(q) - t) / pr.tau
 		f := (-lambda*c + mu/2*c*c) / ob.n
-		k := (-lambda + mu*c) * pr.dtr(q) / pr.tau / ob.n
+		k := (-lambda + mu*c) * sg * pr.dtr(q) / pr.tau / ob.n
 		gu := make([]float64, len(u))
 		for j := range u {
 			gu[j] = k * gq[j] * ob.coords[j].dx(u[j])
@@ -130,11 +131,12 @@ func (pr *profiler) lagrange(ctx context.Context, t float64, w warm, workers int
 			return p, w
 		}
 		u = last.U
-		q, _, err := pr.q(ob.xOf(u))
+		xu := ob.xOf(u)
+		q, _, err := pr.q(xu)
 		if err != nil {
 			break
 		}
-		c := (pr.tr(q) - t) / pr.tau
+		c := (pr.sign(xu)*pr.tr(q) - t) / pr.tau
 		if math.Abs(c) <= alTol && last.Converged {
 			lambda -= mu * c
 			done = true
@@ -148,7 +150,7 @@ func (pr *profiler) lagrange(ctx context.Context, t float64, w warm, workers int
 	}
 	x, projected := pr.project(u, s)
 	q, _, _ := pr.q(x)
-	nu := -lambda * pr.dtr(q) / pr.tau
+	nu := -lambda * pr.sign(x) * pr.dtr(q) / pr.tau
 	p := pr.point(x, s, nu, RouteLagrangian, workers)
 	p.Evals = evals
 	p.Converged = done && projected

@@ -1,6 +1,7 @@
 package infer
 
 import (
+	"cmp"
 	"context"
 	"errors"
 	"fmt"
@@ -150,7 +151,8 @@ type QuantityProfile struct {
 	LogLikMax    float64
 	Level        float64
 	Threshold    float64 // chi-square(1) quantile of the level
-	// Lower and Upper bound the interval. LowerOpen (UpperOpen): the
+	// Lower and Upper bound the interval (NaN when only the values of
+	// QuantityProfileOptions.At were asked for). LowerOpen (UpperOpen): the
 	// profile stayed within the threshold up to the end of the search on
 	// that side, so the data set no limit there; Lower (Upper) is then the
 	// last value reached (0 for sigma when ZeroNotRejected).
@@ -249,8 +251,9 @@ type profiler struct {
 	q      quantityFn
 	q0     float64 // q at the fit's maximum
 	name   string
-	sqrt   bool    // T = sqrt (sigma)
-	tau    float64 // scale of T(q): its standard error at the maximum
+	sqrt   bool                      // T = sqrt (sigma)
+	branch func(x []float64) float64 // the sign of sqrt(sigma) at x, nil: +1 (branchSign)
+	tau    float64                   // scale of T(q): its standard error at the maximum
 	lopt   likelihood.Options
 	kinds  []models.ParamKind
 	affine *affineRoute // exact route of a cycle affinity, nil otherwise
@@ -327,6 +330,13 @@ func ProfileQuantity(res *FitResult, d *likelihood.Data, name string, o Quantity
 	if math.IsNaN(q0) || math.IsInf(q0, 0) {
 		return nil, fmt.Errorf("quantity profile of %s: the quantity is %v at the fit's maximum (a one-way edge makes sigma and the affinities through it infinite): it has no profile", name, q0)
 	}
+	if row.Kind == models.KindEntropy {
+		for _, s := range o.At {
+			if s < 0 {
+				return nil, fmt.Errorf("quantity profile of %s: value %v: sigma is never negative", name, s)
+			}
+		}
+	}
 	pr := &profiler{res: res, ob: ob, q: qf, q0: q0, name: name, sqrt: row.Kind == models.KindEntropy, lopt: lopt, kinds: paramKinds(m), o: o, prog: newProgress(nil)}
 	if o.Progress != nil {
 		pr.prog = newProgress(func(_ string, done, _ int) { o.Progress(done) })
@@ -372,7 +382,12 @@ func ProfileQuantity(res *FitResult, d *likelihood.Data, name string, o Quantity
 			pr.affine, out.Method = ar, RouteAffinity
 		}
 	case row.Kind == models.KindEntropy:
-		ep, none, allZero, err := pr.equilibrium(o.Context, d)
+		ep, none, allZero, free, err := pr.equilibrium(o.Context, d)
+		if free == 1 && err == nil && none == "" {
+			if pr.branch, err = branchSign(m, res.X); err != nil {
+				return nil, fmt.Errorf("quantity profile of %s: %w", name, err)
+			}
+		}
 		if allZero || len(net.CycleBasis()) == 0 {
 			out.Fixed, out.Lower, out.Upper, out.Method = true, 0, 0, "fixed by the scheme"
 			out.Notes = append(out.Notes, "every cycle of the scheme has affinity 0 (no cycle, or the spec holds each at 0): sigma = 0 for every parameter value")
@@ -407,6 +422,7 @@ func ProfileQuantity(res *FitResult, d *likelihood.Data, name string, o Quantity
 	var sides [2]sideOut
 	half := max(1, o.Workers/2)
 	if len(o.At) > 0 {
+		out.Lower, out.Upper = math.NaN(), math.NaN()
 		parallel(2, 2, func(k int) {
 			dir := 1.0 - 2*float64(k)
 			var ts []float64
@@ -415,7 +431,7 @@ func ProfileQuantity(res *FitResult, d *likelihood.Data, name string, o Quantity
 					ts = append(ts, t)
 				}
 			}
-			slices.SortFunc(ts, func(a, b float64) int { return cmpF(dir*a, dir*b) })
+			slices.SortFunc(ts, func(a, b float64) int { return cmp.Compare(dir*a, dir*b) })
 			sd := newSide(pr, t0, eq, half)
 			for _, t := range ts {
 				sd.at(o.Context, t)
@@ -441,7 +457,7 @@ func ProfileQuantity(res *FitResult, d *likelihood.Data, name string, o Quantity
 	if eq != nil && !slices.ContainsFunc(out.Points, func(p QuantityPoint) bool { return p.Route == RouteEquilibrium }) {
 		out.Points = append(out.Points, *eq)
 	}
-	slices.SortStableFunc(out.Points, func(a, b QuantityPoint) int { return cmpF(a.Value, b.Value) })
+	slices.SortStableFunc(out.Points, func(a, b QuantityPoint) int { return cmp.Compare(a.Value, b.Value) })
 	out.HigherMax = pr.higher
 	if o.Context.Err() != nil {
 		out.Interrupted = true
@@ -457,7 +473,16 @@ func ProfileQuantity(res *FitResult, d *likelihood.Data, name string, o Quantity
 	return out, nil
 }
 
-// tr is T: sqrt for sigma, the identity otherwise; inv its inverse.
+// sign is the branch of T at x (branchSign), +1 without one.
+func (pr *profiler) sign(x []float64) float64 {
+	if pr.branch == nil {
+		return 1
+	}
+	return pr.branch(x)
+}
+
+// tr is T: sqrt for sigma, the identity otherwise; inv its inverse (on the
+// branch T >= 0).
 func (pr *profiler) tr(q float64) float64 {
 	if pr.sqrt {
 		return math.Sqrt(math.Max(q, 0))
@@ -657,17 +682,6 @@ func (sd *side) bracket(ctx context.Context, ta, ra, tb, rb, z float64, budget i
 		return ta
 	}
 	return ta + (z-ra)*(tb-ta)/(rb-ra)
-}
-
-// cmpF orders floats.
-func cmpF(a, b float64) int {
-	switch {
-	case a < b:
-		return -1
-	case a > b:
-		return 1
-	}
-	return 0
 }
 
 func dot(a, b []float64) float64 {

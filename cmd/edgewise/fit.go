@@ -68,6 +68,7 @@ func cmdFit(args []string, stdout, stderr io.Writer) int {
 	modelOut := c.fs.String("model-out", "", "write the fitted model as a spec (TOML) to this file")
 	plotPath := c.fs.String("plot", "", "write the gap densities with the fitted psi curves to this file (.png, .svg, .pdf)")
 	figWidth := c.fs.Float64("figure-width", 89, "figure width in mm: 89 for one journal column, 183 for the page width")
+	qf := addQuantityFlags(c.fs)
 	rf := addRecordFlags(c.fs)
 	c.outputFlags(true)
 	c.timeUnitFlag()
@@ -96,6 +97,9 @@ func cmdFit(args []string, stdout, stderr io.Writer) int {
 	if err := rf.checkLevel(); err != nil {
 		return c.usage("%v", err)
 	}
+	if err := qf.check(*figWidth); err != nil {
+		return c.usage("%v", err)
+	}
 	if *plotPath != "" {
 		if _, err := figFormat(*plotPath); err != nil {
 			return c.usage("--plot: %v", err)
@@ -106,7 +110,7 @@ func cmdFit(args []string, stdout, stderr io.Writer) int {
 	}
 	files := output.NewFiles(stdout, *c.force)
 	defer files.Close()
-	for _, cl := range [][2]string{{"-o", *c.out}, {"--model-out", *modelOut}, {"--plot", *plotPath}} {
+	for _, cl := range [][2]string{{"-o", *c.out}, {"--model-out", *modelOut}, {"--plot", *plotPath}, {"--profile-plot", *qf.plot}} {
 		if cl[1] == "" {
 			continue
 		}
@@ -174,6 +178,9 @@ func cmdFit(args []string, stdout, stderr io.Writer) int {
 	}
 	if bootErr != nil {
 		r.Note("parametric bootstrap not made: %v", bootErr)
+	}
+	if err := quantityProfiles(c, files, r, res, rin.d, ins, unit, qf, *figWidth); err != nil {
+		return c.fail(1, rin.rep.Locate(err))
 	}
 	var fitted *models.Model
 	if *modelOut != "" || *plotPath != "" {
