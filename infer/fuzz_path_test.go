@@ -1,6 +1,7 @@
 package infer
 
 import (
+	"fmt"
 	"math"
 	"os"
 	"path/filepath"
@@ -8,6 +9,7 @@ import (
 	"strings"
 	"sync"
 	"testing"
+	"time"
 
 	"edgewise/likelihood"
 	"edgewise/models"
@@ -95,6 +97,9 @@ func FuzzRecordsPath(f *testing.F) {
 		f.Add(string(src[:min(len(src), 4000)]))
 	}
 	f.Fuzz(func(t *testing.T, src string) {
+		// Bounded time: an input that takes 20 s crashes the worker, and
+		// the fuzzer keeps it as a failing case.
+		defer time.AfterFunc(20*time.Second, func() { panic(fmt.Sprintf("input took more than 20 s: %.300q", src)) }).Stop()
 		d, _, err := ReadRecords(strings.NewReader(src), "fuzz.csv", ReadOptions{})
 		if err != nil {
 			return
