@@ -70,6 +70,22 @@ func fuzzEstimate(t *testing.T, name string, e Estimate, nonNegative bool) {
 	}
 }
 
+// fuzzDeadline bounds the time of one fuzz input: after 60 s it writes the
+// input to a file in the temporary folder (a worker's output is not
+// shown) and panics, which ends the worker; the fuzzer keeps the input as
+// a failing case. Call the returned function when the input is done.
+func fuzzDeadline(input string) func() {
+	t := time.AfterFunc(60*time.Second, func() {
+		f, err := os.CreateTemp("", "edgewise-fuzz-slow-*.txt")
+		if err == nil {
+			f.WriteString(input)
+			f.Close()
+		}
+		panic(fmt.Sprintf("input took more than 60 s: %.300q", input))
+	})
+	return func() { t.Stop() }
+}
+
 // FuzzRecordsPath takes arbitrary records through the whole model-free
 // path and a fixed model: whatever the reader accepts, the summary (with
 // bootstraps), the fluctuation test (count-stopped, post-selected and
@@ -97,9 +113,7 @@ func FuzzRecordsPath(f *testing.F) {
 		f.Add(string(src[:min(len(src), 4000)]))
 	}
 	f.Fuzz(func(t *testing.T, src string) {
-		// Bounded time: an input that takes 20 s crashes the worker, and
-		// the fuzzer keeps it as a failing case.
-		defer time.AfterFunc(20*time.Second, func() { panic(fmt.Sprintf("input took more than 20 s: %.300q", src)) }).Stop()
+		defer fuzzDeadline(src)()
 		d, _, err := ReadRecords(strings.NewReader(src), "fuzz.csv", ReadOptions{})
 		if err != nil {
 			return

@@ -29,9 +29,16 @@ func FuzzSpecSimulate(f *testing.F) {
 	f.Add("states=[\"A\",\"B\",\"C\"]\n[[edge]]\nbetween=[\"A\",\"B\"]\nrates=[\"k\",\"m\"]\nlabels=[\"+\",\"-\"]\n[[edge]]\nbetween=[\"B\",\"C\"]\nrates=[\"big\",\"small\"]\n[[edge]]\nbetween=[\"C\",\"A\"]\nrates=[\"k\",\"m\"]\n[param.k]\nvalue=3\n[param.m]\nvalue=0.5\n[param.big]\nvalue=1e300\n[param.small]\nvalue=1e-300\n")
 	f.Add("states=[\"A\",\"B\"]\n[[edge]]\nbetween=[\"A\",\"B\"]\none_way=true\nrates=[\"k\"]\nlabels=[\"+\"]\n[param.k]\nvalue=1\n")
 	f.Fuzz(func(t *testing.T, s string) {
-		// Bounded time: an input that takes 20 s crashes the worker, and
-		// the fuzzer keeps it as a failing case.
-		defer time.AfterFunc(20*time.Second, func() { panic(fmt.Sprintf("input took more than 20 s: %.300q", s)) }).Stop()
+		// Bounded time: an input that takes 60 s ends the worker (its
+		// text goes to a file in the temporary folder), and the fuzzer
+		// keeps it as a failing case.
+		defer time.AfterFunc(60*time.Second, func() {
+			if f, err := os.CreateTemp("", "edgewise-fuzz-slow-*.txt"); err == nil {
+				f.WriteString(s)
+				f.Close()
+			}
+			panic(fmt.Sprintf("input took more than 60 s: %.300q", s))
+		}).Stop()
 		m, err := Parse(strings.NewReader(s), "fuzz.toml")
 		if err != nil {
 			return
