@@ -2,8 +2,6 @@ package infer
 
 import (
 	"math"
-	"os"
-	"path/filepath"
 	"strconv"
 	"testing"
 )
@@ -15,7 +13,6 @@ const benchEvents = 10_000_000
 // resolution first (an instrument clock; 1e-6 gives about 10 significant
 // digits), else written with all the digits a float64 needs (up to 17).
 func recBigFile(b *testing.B, clock float64) string {
-	path := filepath.Join(b.TempDir(), "big.csv")
 	d := recSimulate(b, recModel(b, "../testdata/ring3.toml"), 1, 4, benchEvents/4)
 	if clock > 0 {
 		digits := int(math.Ceil(-math.Log10(clock)))
@@ -26,17 +23,7 @@ func recBigFile(b *testing.B, clock float64) string {
 			}
 		}
 	}
-	f, err := os.Create(path)
-	if err != nil {
-		b.Fatal(err)
-	}
-	if err := WriteRecords(f, d); err != nil {
-		b.Fatal(err)
-	}
-	if err := f.Close(); err != nil {
-		b.Fatal(err)
-	}
-	return path
+	return writeBenchFile(b, d)
 }
 
 func benchReadSummarize(b *testing.B, clock float64, summarize bool) {

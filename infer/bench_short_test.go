@@ -1,6 +1,7 @@
 package infer
 
 import (
+	"edgewise/likelihood"
 	"os"
 	"path/filepath"
 	"testing"
@@ -21,7 +22,12 @@ const shortRecords = 1_000_000
 // benchFile writes records of the shipped 4-state ring to a CSV file in a
 // temporary folder and returns its path.
 func benchFile(b *testing.B, records, events int) string {
-	d := recSimulate(b, recModel(b, "../testdata/ring4.toml"), 1, records, events)
+	return writeBenchFile(b, recSimulate(b, recModel(b, "../testdata/ring4.toml"), 1, records, events))
+}
+
+// writeBenchFile writes d as CSV in a temporary folder and returns the
+// file's path.
+func writeBenchFile(b *testing.B, d *likelihood.Data) string {
 	path := filepath.Join(b.TempDir(), "r.csv")
 	f, err := os.Create(path)
 	if err != nil {

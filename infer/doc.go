@@ -13,6 +13,24 @@
 // column. WriteRecords writes data back so that reading it again gives the
 // same values bit for bit.
 //
+// Degenerate and hostile input is refused, not turned into numbers: times
+// outside the working range (|t| <= MaxTime = 1e150, positive gaps >=
+// MinGap = 1e-150: the statistics square and multiply times and rates),
+// subnormal times, distinct decimals that are one float64 (times beyond
+// double precision), UTF-16 text, labels and state names over 100 bytes,
+// record IDs over 256, lines over 1 MiB. Messages repeat at most 40 bytes
+// of any input. CheckTimes makes the same time checks, by record and
+// event, for data built in code; the statistics call it first.
+//
+// Zero gaps (an event at the time of the previous one: the gap is below
+// the resolution of the times) are kept: they count in every statistic of
+// the label sequence (counts, P(l'|l), F, J, the windows of the
+// fluctuation test), the waiting-time divergences leave them out, the shape
+// test flags them as ties, and the exact-time likelihood refuses them
+// (likelihood.ZeroGapError; a frame of the clock's resolution integrates
+// over them instead). The report says how many and where the first is
+// (ReadReport.ZeroGaps, Locate).
+//
 // # Summary
 //
 // Summarize gives, pooled over records and per record, for labels l, l'

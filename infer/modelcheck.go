@@ -76,23 +76,37 @@ func SlopeTest(s Symmetry, law likelihood.CountDist) CountTest {
 	}
 	w := float64(s.Windows)
 	tail, ok := sl.tail(w, u)
+	lp := math.Log(tail) // ln of the one-sided tail
 	if !ok {
 		// U at (or beyond) an end of the support: every window at the c
-		// with the largest (smallest) contribution, probability P(c)^W.
+		// with the largest (smallest) contribution, probability P(c)^W,
+		// taken in logs.
 		best, pc := 0.0, 0.0
 		for i, x := range sl.U {
 			if (u > 0 && x >= best) || (u < 0 && x <= best) {
 				best, pc = x, sl.P[i]
 			}
 		}
-		tail = 0
-		if math.Abs(u-w*best) <= 1e-9*math.Abs(u) {
-			tail = math.Exp(w * math.Log(pc))
+		lp = math.Inf(-1)
+		if math.Abs(u-w*best) <= 1e-9*math.Abs(u) && pc > 0 {
+			lp = w * math.Log(pc)
 		}
 		t.Note = "the data's score lies at the end of its range under the model"
 	}
-	t.P = math.Min(1, 2*tail)
-	t.Z = ZFromP(t.P, u)
+	if math.IsInf(lp, -1) {
+		// Beyond what the computed law reaches: windows at currents it
+		// leaves out (probability at most likelihood.LawTail each), or a
+		// tail below the float64 range. W LawTail bounds the tail, so the
+		// p-value is an upper bound and z finite: the data are improbable
+		// under the model, not impossible.
+		lp = math.Log(w * likelihood.LawTail)
+		t.Note = joinNote(t.Note, "the data lie beyond the model's computed law: the p-value is an upper bound")
+	}
+	t.P = math.Min(1, 2*math.Exp(lp))
+	t.Z = normalScore(math.Min(0, math.Log(2)+lp))
+	if u < 0 {
+		t.Z = -t.Z
+	}
 	rare := 0.0 // windows of the rarer sign expected under the model
 	for i, c := range law.C {
 		if c > 0 {

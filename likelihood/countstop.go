@@ -14,6 +14,14 @@ type CountDist struct {
 	Weight float64   // probability of the conditioning event; 1 when unconditioned
 }
 
+// LawTail bounds the probability mass an exact law of c leaves out: the
+// Poisson tail of the fixed-time law's uniformisation sum, and, in every
+// law, the values of c whose probability is below the float64 range
+// (stored as 0). A count that a law gives probability 0 is therefore
+// improbable, not impossible, unless it lies outside [-n, n] of a
+// count-stopped window.
+const LawTail = fixedTimeTail
+
 // Prob returns Pr(c | event), 0 outside the support.
 func (d CountDist) Prob(c int) float64 {
 	if len(d.C) == 0 {

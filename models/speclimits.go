@@ -19,6 +19,10 @@ const (
 	MaxSpecDepth = 32      // arrays, inline tables and dotted key parts, nested
 	MaxNameBytes = 100     // a key, a state, label or parameter name, any string value
 	MaxDescBytes = 4000    // the description
+	// MaxStates bounds the network: the stationary law and the
+	// likelihood's matrices cost O(N^3) (1000 states: describe 0.6 s,
+	// predict 8 s on the shared machine).
+	MaxStates = 1000
 )
 
 // checkSpecText refuses, with file and line, a spec whose text is UTF-16
@@ -107,6 +111,9 @@ func checkSpecText(src []byte, file string) error {
 // repeating at most 40 bytes of the text. Names go into every table and
 // message; a 50,000-byte name made each message 50,000 bytes long.
 func checkSpecNames(doc map[string]any, file string, loc locator) error {
+	if st, ok := doc["states"].([]any); ok && len(st) > MaxStates {
+		return &SpecError{File: file, Line: loc.line("states"), Key: "states", Msg: fmt.Sprintf("%d states; at most %d", len(st), MaxStates)}
+	}
 	var walk func(v any, path string) error
 	walk = func(v any, path string) error {
 		switch x := v.(type) {

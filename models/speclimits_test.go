@@ -32,6 +32,7 @@ rates = ["kca", "kac"]
 		{"too large", "# " + strings.Repeat("x", MaxSpecBytes) + "\n", "larger than 1048576 bytes"},
 		{"UTF-16", "\xff\xfen\x00a\x00m\x00e\x00", "x.toml:1: UTF-16 text"},
 		{"long state name", strings.Replace(ring, `"C"]`, `"`+long+`"]`, 1), `states: "ssssssssssssssssssssssssssssssssssssssss"... (50000 bytes) is longer than 100 bytes`},
+		{"too many states", "states = [" + strings.Repeat(`"s",`, 1001) + "]\n", "x.toml:1: states: 1001 states; at most 1000"},
 		{"long key", ring + "[param." + long + "]\nvalue = 1\n", `key "ssssssssssssssssssssssssssssssssssssssss"... (50000 bytes) is longer than 100 bytes`},
 	}
 	for _, c := range cases {
