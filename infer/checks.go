@@ -153,7 +153,7 @@ func AssumptionChecks(d *likelihood.Data, o CheckOptions) []Check {
 		Null:        "the labels form a first-order Markov chain, as when each label sits on one directed edge",
 		Alternative: "spurious events, a label shared by several edges, or hidden memory that no single-edge scheme has",
 		Stat:        mo.Stat, DF: mo.DF, N: mo.N, P: mo.P, Note: mo.Note})
-	st := StationarityTest(d)
+	st := stationarity(d, false) // pooled tests only: no list per record
 	add := func(name, null, alt string, t TestResult) {
 		c := Check{Name: name, Null: null, Alternative: alt, Stat: t.Stat, DF: t.DF, N: t.N, P: t.P, Note: t.Note}
 		cs = append(cs, c)

@@ -201,12 +201,18 @@ type Stationarity struct {
 // estimate the variance of a mean gap by batch means, since consecutive
 // gaps are correlated through the labels; the G tests treat transition
 // counts as multinomial given the visits (Anderson and Goodman 1957).
-func StationarityTest(d *likelihood.Data) Stationarity {
+func StationarityTest(d *likelihood.Data) Stationarity { return stationarity(d, true) }
+
+// stationarity is StationarityTest; without perRecord it leaves
+// Stationarity.Records empty (the pooled tests are the same).
+func stationarity(d *likelihood.Data, perRecord bool) Stationarity {
 	k := len(d.Labels)
 	kk := k * k
 	var s Stationarity
 	nr := len(d.Records)
-	s.Records = make([]RecordStationarity, 0, nr)
+	if perRecord {
+		s.Records = make([]RecordStationarity, 0, nr)
+	}
 	// Per record: mean gap, the variance of that mean, batches, gaps.
 	gm, gv := make([]float64, 0, nr), make([]float64, 0, nr)
 	gn, gc := make([]int, 0, nr), make([]int, 0, nr)
@@ -257,7 +263,9 @@ func StationarityTest(d *likelihood.Data) Stationarity {
 			rs.Next.P = math.NaN()
 			rs.Next.Note = "no degrees of freedom"
 		}
-		s.Records = append(s.Records, rs)
+		if perRecord {
+			s.Records = append(s.Records, rs)
+		}
 		s.HalvesNext.Stat += rs.Next.Stat
 		s.HalvesNext.DF += rs.Next.DF
 		s.HalvesNext.N += rs.Next.N
