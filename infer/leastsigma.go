@@ -429,9 +429,9 @@ func ProfileQuantity(res *FitResult, d *likelihood.Data, name string, o Quantity
 	}
 
 	type sideOut struct {
-		pts        []QuantityPoint
-		end        float64
-		open, done bool
+		pts  []QuantityPoint
+		end  float64
+		open bool
 	}
 	var sides [2]sideOut
 	half := max(1, o.Workers/2)
@@ -457,7 +457,7 @@ func ProfileQuantity(res *FitResult, d *likelihood.Data, name string, o Quantity
 			dir := 1.0 - 2*float64(k)
 			sd := newSide(pr, t0, eq, half)
 			end, open := sd.follow(o.Context, dir, math.Sqrt(out.Threshold))
-			sides[k] = sideOut{pts: sd.pts, end: end, open: open, done: true}
+			sides[k] = sideOut{pts: sd.pts, end: end, open: open}
 		})
 		out.Upper, out.UpperOpen = pr.inv(sides[0].end), sides[0].open
 		out.Lower, out.LowerOpen = pr.inv(sides[1].end), sides[1].open
