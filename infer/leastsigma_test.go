@@ -474,3 +474,45 @@ value = 0.1
 		t.Error(v)
 	}
 }
+
+// F is profiled under the fit's instrument: with a dead time of 0.05 time
+// units F of the ring is no longer its cycle affinity (design notes
+// section 7), the profile's estimate is F under the instrument
+// (likelihood.ModelSensitivity with the dead time), and its points hold
+// that F, not the one without the dead time, to 1e-8.
+func TestQuantityProfileFUnderInstrument(t *testing.T) {
+	m := parseSpec(t, lsRing3Spec)
+	ins := likelihood.Instrument{DeadTime: 0.05}
+	net, err := m.Network(m.Start())
+	if err != nil {
+		t.Fatal(err)
+	}
+	d := goodnessData(t, net, likelihood.Options{Instrument: ins}, 21, 3000)
+	res, err := Fit(m, d, FitOptions{Starts: 2, Seed: 1, Workers: 2, Likelihood: likelihood.Options{Instrument: ins}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, _, err := likelihood.ModelSensitivity(res.Model, res.X, ins)
+	if err != nil {
+		t.Fatal(err)
+	}
+	fIns := s.Value[s.Find("F[+/-]")]
+	a := s.Value[s.Find("affinity[0:B-C-A-B]")]
+	if math.Abs(fIns-a) < 0.01 {
+		t.Fatalf("F %.4g and the affinity %.4g agree: the dead time does not matter here", fIns, a)
+	}
+	p := lsAt(t, res, d, "F[+/-]", []float64{fIns - 0.2, fIns + 0.2}, false)
+	if p.Estimate != fIns {
+		t.Errorf("estimate %.10g, F under the instrument %.10g", p.Estimate, fIns)
+	}
+	lsCheckPoints(t, p, res.Gaps)
+	for _, q := range p.Points {
+		s, _, err := likelihood.ModelSensitivity(res.Model, q.X, ins)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if f := s.Value[s.Find("F[+/-]")]; math.Abs(f-q.Value) > 1e-8*math.Max(1, math.Abs(q.Value)) {
+			t.Errorf("point %.6g: F under the instrument %.12g", q.Value, f)
+		}
+	}
+}
