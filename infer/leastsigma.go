@@ -75,11 +75,23 @@ import (
 // route) with the residual of that stationarity condition.
 //
 // The interval is found side by side, as for the parameters (profile.go):
-// steps of half a standard error in T(s) from the estimate (doubled while
-// the root deviance r = sqrt(2 (ln L_max - ln L_p)) grows slowly), then
-// regula falsi (Illinois) on r - z inside the bracket, z^2 the chi-square(1)
-// quantile; each inner maximisation is warm-started at the nearest point
-// already computed. Every point evaluated is kept, for a figure.
+// steps of a third of z standard errors in T(s) from the estimate (doubled
+// while the root deviance r = sqrt(2 (ln L_max - ln L_p)) grows slowly),
+// then regula falsi (Illinois) on r - z inside the bracket, z^2 the
+// chi-square(1) quantile. Each inner maximisation is warm-started at the
+// nearest point already computed between it and the estimate, so that
+// every point continues a path from the fit's maximum outwards (a point
+// farther out may sit on another branch). Below the estimate of sigma the
+// steps at most halve sqrt(sigma), and the known equilibrium member closes
+// the bracket at 0. sqrt(sigma) has a cusp where sigma = 0: with one free
+// affinity direction (a ring) that is a surface the search can cross onto
+// the branch of reversed driving, so there T = sign(l) sqrt(sigma) with l =
+// sum_c J_c A_c (J_c the cycle currents at the maximum), which is smooth
+// through 0 (branchSign); with more free directions the cusp is a lower-
+// dimensional set, approached only near sigma = 0, where the Lagrange
+// condition is then met less tightly (the Stationarity of each point says
+// how well). Every point evaluated is kept, for a figure; a profile that is
+// not unimodal gets a note.
 
 // QuantityProfileOptions configures ProfileQuantity.
 type QuantityProfileOptions struct {
@@ -129,9 +141,11 @@ type QuantityPoint struct {
 	// Slope is nu = d ln L_p/ds (nats per unit of the quantity), from the
 	// Lagrange condition grad ln L = nu grad q; NaN where q has no
 	// gradient (sigma = 0). Stationarity is the largest component of
-	// grad ln L - nu grad q in the working coordinates (ln of a rate, logit
-	// of a detection probability), in nats: a few times the fit's gradient
-	// threshold at most at a converged point.
+	// grad ln L - nu grad q in the optimiser's coordinates (the ln of a
+	// rate while it stays within e^10 of the fit's value, where the soft
+	// map that keeps rates finite saturates; the logit of a detection
+	// probability), in nats: a few times the fit's gradient threshold at
+	// most at a converged point.
 	Slope, Stationarity float64
 	Route               string
 	Converged           bool
@@ -415,9 +429,9 @@ func ProfileQuantity(res *FitResult, d *likelihood.Data, name string, o Quantity
 	}
 
 	type sideOut struct {
-		pts        []QuantityPoint
-		end        float64
-		open, done bool
+		pts  []QuantityPoint
+		end  float64
+		open bool
 	}
 	var sides [2]sideOut
 	half := max(1, o.Workers/2)
@@ -443,7 +457,7 @@ func ProfileQuantity(res *FitResult, d *likelihood.Data, name string, o Quantity
 			dir := 1.0 - 2*float64(k)
 			sd := newSide(pr, t0, eq, half)
 			end, open := sd.follow(o.Context, dir, math.Sqrt(out.Threshold))
-			sides[k] = sideOut{pts: sd.pts, end: end, open: open, done: true}
+			sides[k] = sideOut{pts: sd.pts, end: end, open: open}
 		})
 		out.Upper, out.UpperOpen = pr.inv(sides[0].end), sides[0].open
 		out.Lower, out.LowerOpen = pr.inv(sides[1].end), sides[1].open
@@ -464,6 +478,9 @@ func ProfileQuantity(res *FitResult, d *likelihood.Data, name string, o Quantity
 	}
 	if out.HigherMax > sameOptimumTol {
 		out.Notes = append(out.Notes, fmt.Sprintf("profiling met ln L %.3g nats above the fit's maximum: the fit missed its maximum; refit with more starts", out.HigherMax))
+	}
+	if v := notUnimodal(out); v != "" {
+		out.Notes = append(out.Notes, v)
 	}
 	for _, p := range out.Points {
 		if !p.Converged {
@@ -515,8 +532,9 @@ func (pr *profiler) point(x []float64, s, nu float64, route string, workers int)
 	}
 	p.Achieved = qv
 	gw, qw := make([]float64, len(x)), make([]float64, len(x))
+	u := pr.ob.uOf(x)
 	for j := range x {
-		f := dxdw(pr.kinds[j], x[j])
+		f := pr.ob.coords[j].dx(u[j])
 		gw[j], qw[j] = gx[j]*f, gq[j]*f
 	}
 	if route == RouteEquilibrium {
@@ -551,9 +569,6 @@ type side struct {
 func newSide(pr *profiler, t0 float64, eq *QuantityPoint, workers int) *side {
 	sd := &side{pr: pr, t0: t0, eq: eq, workers: workers}
 	sd.warms = []warm{{t: t0, x: slices.Clone(pr.res.X), mu: alMu0}}
-	if eq != nil {
-		sd.warms = append(sd.warms, warm{t: 0, x: slices.Clone(eq.X), mu: alMu0, lambda: -t0 / pr.tau})
-	}
 	return sd
 }
 
@@ -564,9 +579,13 @@ func (sd *side) at(ctx context.Context, t float64) float64 {
 	if pr.sqrt && t <= 0 && sd.eq != nil {
 		return rootDeviance(*sd.eq)
 	}
+	// Warm start: the nearest point between t and the estimate, so that
+	// every point continues a path from the fit's maximum outwards; a
+	// point farther out may sit on another branch (a search that failed,
+	// or near the cusp of sqrt(sigma) at equilibrium).
 	w := sd.warms[0]
 	for _, c := range sd.warms[1:] {
-		if math.Abs(c.t-t) < math.Abs(w.t-t) {
+		if (c.t-t)*(sd.t0-t) >= 0 && math.Abs(c.t-t) < math.Abs(w.t-t) {
 			w = c
 		}
 	}
@@ -589,6 +608,19 @@ func (sd *side) at(ctx context.Context, t float64) float64 {
 	return rootDeviance(p)
 }
 
+// notUnimodal describes the first place where ln L_p rises away from the
+// estimate by more than 1e-3 nats: a constrained maximum there was missed
+// (the search ended on a lower branch), so the interval may be too short.
+func notUnimodal(p *QuantityProfile) string {
+	for i := 1; i < len(p.Points); i++ {
+		a, b := p.Points[i-1], p.Points[i]
+		if (b.Value <= p.Estimate && b.LogLik < a.LogLik-1e-3) || (a.Value >= p.Estimate && b.LogLik > a.LogLik+1e-3) {
+			return fmt.Sprintf("the profile is not unimodal (ln L_p %.4f at %.6g, %.4f at %.6g): a constrained search ended below the maximum it should have found, so the interval may be too short; refit with more starts and profile again", a.LogLik, a.Value, b.LogLik, b.Value)
+		}
+	}
+	return ""
+}
+
 func rootDeviance(p QuantityPoint) float64 {
 	if math.IsInf(p.LogLik, -1) || math.IsNaN(p.LogLik) {
 		return math.Inf(1)
@@ -603,19 +635,34 @@ func (sd *side) follow(ctx context.Context, dir, z float64) (float64, bool) {
 	pr := sd.pr
 	h := z * pr.tau / 3
 	lim := sd.t0 + dir*math.Max(60*pr.tau, 10*math.Abs(sd.t0))
-	if pr.sqrt && dir < 0 {
-		lim = 0
-		if sd.eq == nil {
-			lim = 1e-3 * sd.t0 // no equilibrium member: T = 0 cannot be reached
-		}
+	// Below the estimate of sigma the steps at most halve T = sqrt(sigma),
+	// so that the walk approaches sigma = 0, where sqrt(sigma) has its cusp,
+	// gradually; within 1/64 of the estimate's T the known equilibrium
+	// member closes the bracket (or, when it is within the threshold, the
+	// side is open to 0).
+	low := pr.sqrt && dir < 0
+	r0 := math.Inf(1)
+	if sd.eq != nil {
+		r0 = rootDeviance(*sd.eq)
 	}
-	if dir*(lim-sd.t0) <= 0 {
-		return sd.t0, true
+	if low && !(sd.t0 > 0) {
+		return 0, true
 	}
 	ta, ra := sd.t0, 0.0
 	for n := 0; n < pr.o.MaxPoints && ctx.Err() == nil; n++ {
 		tb := ta + dir*h
-		if dir*(tb-lim) >= 0 {
+		if low {
+			if ta <= sd.t0/64 {
+				switch {
+				case sd.eq != nil && r0 >= z:
+					return sd.bracket(ctx, ta, ra, 0, r0, z, pr.o.MaxPoints-n), false
+				case sd.eq != nil:
+					return 0, true
+				}
+				return ta, true
+			}
+			tb = math.Max(tb, ta/2)
+		} else if dir*(tb-lim) >= 0 {
 			tb = lim
 		}
 		rb := sd.at(ctx, tb)

@@ -77,14 +77,26 @@ func quantityProfiles(c *command, files *output.Files, r *output.Report, res *in
 		r.Note("quantity profiles not computed: the fit was interrupted")
 		return nil
 	}
-	ctx, stop := interruptible()
-	defer stop()
-	pb := c.progress(-1, "profiling "+strings.Join(which, ", "), false)
-	profs, err := infer.ProfileQuantities(res, d, which, infer.QuantityProfileOptions{Level: res.Level, Workers: res.Options.Workers, Context: ctx, Progress: func(int) { pb.add(1) }})
-	pb.finish()
-	stop()
+	names, err := infer.QuantityNames(res, which)
 	if err != nil {
 		return err
+	}
+	ctx, stop := interruptible()
+	defer stop()
+	pb := c.progress(-1, "profiling "+strings.Join(names, ", "), false)
+	var profs []*infer.QuantityProfile
+	for _, n := range names {
+		p, err := infer.ProfileQuantity(res, d, n, infer.QuantityProfileOptions{Level: res.Level, Workers: res.Options.Workers, Context: ctx, Progress: func(int) { pb.add(1) }})
+		if err != nil {
+			r.Note("profile of %s not computed: %v", n, err)
+			continue
+		}
+		profs = append(profs, p)
+	}
+	pb.finish()
+	stop()
+	if len(profs) == 0 {
+		return nil
 	}
 	bounds, bnote := sigmaBounds(res, d, ins)
 	r.Add(quantityTable(profs, res.Level, u))
