@@ -41,6 +41,14 @@ of parameters that AIC and BIC use (n = number of gaps). Derived
 quantities (sigma, F, J, cycle affinities, edge currents, mean gap after
 each label) come with delta-method intervals.
 
+Least dissipation: --profile-quantity sigma,F,affinities gives the
+profile-likelihood interval of the entropy production rate sigma (its lower
+end is the least dissipation the data do not reject within the scheme; 0
+when an equilibrium member fits, and then the data do not prove driving),
+of F under the instrument and of every cycle affinity, beside the data's
+model-free lower bounds where they hold; --profile-plot draws the profiles.
+--bootstrap B refits B data sets simulated from the fitted model.
+
 --model-out writes the fitted model back as a spec that describe, predict
 and simulate accept. --plot draws the data's gap densities per label pair
 with the fitted psi curves over them. Ctrl-C stops the search and reports
@@ -51,6 +59,7 @@ compare schemes with 'edgewise compare'.
 
 Example:
   edgewise fit testdata/ring4-demo.csv testdata/ring4.toml --starts 8 --model-out fitted.toml
+  edgewise fit testdata/ring4-demo.csv testdata/ring4.toml --profile-quantity sigma --profile-plot sigma.pdf
 
 Options:
 `
