@@ -80,8 +80,28 @@ type PlanResult struct {
 	// data's F to reach TargetSE (NaN when not asked or F is undefined).
 	FVarPerEvent, EventsForSE float64
 	ClosestB                  []float64 // B's free parameters at the closest member
-	Notes                     []string
+	// Departure is, per window length, the fixed-time slope's departure
+	// from F under A and the events for it to be seen at 3 standard
+	// errors (empty when F is undefined for A).
+	Departure []Departure
+	Notes     []string
 }
+
+// Departure is the departure of the fixed-time fluctuation slope from the
+// count-stopped one (F) under A at one window duration.
+type Departure struct {
+	WindowEvents int     // mean events per window: T = WindowEvents x mean gap
+	Duration     float64 // T (time units)
+	Slope        float64 // the fixed-time slope estimand (binomial ML) at T
+	Delta        float64 // Slope - F (k_BT)
+	// Events for |Delta| = 3 standard errors of the data's slope minus the
+	// data's F: 9 (WindowEvents SlopeVar + n Var F)/Delta^2, the two
+	// estimates taken as independent; +Inf when Delta = 0.
+	Events float64
+}
+
+// departureWindows are the window lengths (in mean events) of Departure.
+var departureWindows = []int{5, 20, 100}
 
 // Plan answers how many visible events tell scheme B from scheme A when A
 // is true. A's rates are taken as they are (its start values); B is a
@@ -182,6 +202,10 @@ func Plan(a, b *models.Model, plus, minus string, o PlanOptions) (*PlanResult, e
 					res.FVarPerEvent = 1/(r[pl]*P[pl][pl]) - 1/r[pl] + 1/(r[mi]*P[mi][mi]) - 1/r[mi]
 					if o.TargetSE > 0 {
 						res.EventsForSE = math.Ceil(res.FVarPerEvent / (o.TargetSE * o.TargetSE))
+					}
+					res.Departure = departures(pred, pl, mi, res.FVarPerEvent)
+					if len(netA.CycleBasis()) < 2 {
+						res.Notes = append(res.Notes, fmt.Sprintf("%s has one cycle: its fixed-time slope approaches F for long windows, so the departure says little about hidden driving", a.Name))
 					}
 				} else {
 					res.Notes = append(res.Notes, "F is not defined for A (a pair ++ or -- never occurs): no events reach an F standard error")
@@ -341,4 +365,32 @@ func mean(v []float64) float64 {
 		s += x
 	}
 	return s / float64(len(v))
+}
+
+// departures computes Departure at departureWindows under the predictor p
+// (visible edge pl/mi, F's per-event variance fvar): the fixed-time law
+// (Predictor.FixedTime) and its binomial maximum-likelihood slope with its
+// per-window variance (CountDist.SlopeEstimand).
+func departures(p *likelihood.Predictor, pl, mi int, fvar float64) []Departure {
+	q := make([]int, p.NumLabels())
+	q[pl], q[mi] = 1, -1
+	f := p.EffectiveAffinity(pl, mi)
+	var out []Departure
+	for _, w := range departureWindows {
+		t := float64(w) * p.MeanGap()
+		law, err := p.FixedTime(t, q)
+		if err != nil {
+			continue
+		}
+		est := law.SlopeEstimand()
+		if !est.Defined || math.IsNaN(est.SlopeVar) {
+			continue
+		}
+		d := Departure{WindowEvents: w, Duration: t, Slope: est.Slope, Delta: est.Slope - f, Events: math.Inf(1)}
+		if d.Delta != 0 {
+			d.Events = math.Ceil(9 * (float64(w)*est.SlopeVar + fvar) / (d.Delta * d.Delta))
+		}
+		out = append(out, d)
+	}
+	return out
 }

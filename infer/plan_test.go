@@ -139,3 +139,35 @@ func TestPlanBadInput(t *testing.T) {
 		t.Errorf("different labels: %v", err)
 	}
 }
+
+// Fixed-time departure: for a unicyclic ring the fixed-time slope
+// approaches F as the window grows (the departure shrinks), while the
+// shipped two-cycle scheme (a driven cycle off the visible edge) keeps a
+// departure at every window length; the events follow 9 (w SlopeVar +
+// n Var F)/Delta^2 (checked against the values it is made of).
+func TestPlanDeparture(t *testing.T) {
+	ring := parseSpec(t, ring4Truth)
+	res, err := Plan(ring, ring, "+", "-", PlanOptions{KLEvents: 2000, Events: []int{}, Seed: 1, Workers: 2, Starts: 1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(res.Departure) != 3 {
+		t.Fatalf("departures: %+v", res.Departure)
+	}
+	if d := res.Departure; math.Abs(d[2].Delta) >= math.Abs(d[0].Delta) {
+		t.Errorf("ring: departure does not shrink with the window: %+v", d)
+	}
+	two := readSpec(t, "../testdata/compare/truth-twocycle.toml")
+	res2, err := Plan(two, ring, "+", "-", PlanOptions{KLEvents: 2000, Events: []int{}, Seed: 1, Workers: 2, Starts: 1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, d := range res2.Departure {
+		if !(math.Abs(d.Delta) > 0.05) {
+			t.Errorf("two-cycle scheme, %d gaps: departure %.3g", d.WindowEvents, d.Delta)
+		}
+		if !(d.Events > 0) || math.IsInf(d.Events, 0) {
+			t.Errorf("events %v", d.Events)
+		}
+	}
+}
