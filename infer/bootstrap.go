@@ -30,6 +30,57 @@ type BootstrapOptions struct {
 	// Progress, when not nil, is called after each replicate (one call at
 	// a time).
 	Progress func(done, total int)
+	// MaxJumps bounds the expected number of simulated jumps of the run
+	// (all its replicates; default DefaultMaxJumps, negative: no bound).
+	// A null whose fitted rates are extreme (a flat direction of the
+	// likelihood lets them run off) makes thousands of hidden jumps per
+	// recorded event; ParametricBootstrap then refuses with a
+	// *BootstrapCostError before any work.
+	MaxJumps float64
+}
+
+// DefaultMaxJumps is the default bound on the expected simulated jumps of
+// one bootstrap run: about 5 minutes of simulation at 30 ns a jump.
+const DefaultMaxJumps = 1e10
+
+// BootstrapCostError says that simulating the replicates would take too
+// many jumps.
+type BootstrapCostError struct {
+	Model         string
+	JumpsPerEvent float64 // expected jumps per recorded event under the null
+	Events        int     // recorded events per replicate
+	Replicates    int     // replicates of the run
+	MaxRate       float64 // the null's largest exit rate (1/time)
+	Limit         float64
+}
+
+func (e *BootstrapCostError) Error() string {
+	return fmt.Sprintf("bootstrap: simulating %d replicates of %d events from %s would take about %.3g jumps (%.3g per recorded event; its fitted exit rates reach %.3g per unit time), more than %.3g: the fitted rates are stiff, often along a direction the data do not determine; fix or tie them in the spec, or split the replicates into shards", e.Replicates, e.Events, e.Model, e.JumpsPerEvent*float64(e.Events)*float64(e.Replicates), e.JumpsPerEvent, e.MaxRate, e.Limit)
+}
+
+// jumpsPerEvent is the expected number of jumps per recorded event of
+// net in its stationary state, sum_i pi_i q_i / sum_(i->j labelled)
+// pi_i w_ij p_l, and its largest exit rate q_i. A dead time loses events
+// and makes the true number larger.
+func jumpsPerEvent(net *models.Network) (per, maxRate float64, err error) {
+	pi, err := net.Stationary()
+	if err != nil {
+		return 0, 0, err
+	}
+	q := make([]float64, len(pi))
+	det := 0.0
+	for _, t := range net.Transitions() {
+		q[t.From] += t.Rate
+		if t.Label != models.Hidden {
+			det += pi[t.From] * t.Rate * net.Labels[t.Label].Detect
+		}
+	}
+	jumps := 0.0
+	for i, v := range q {
+		jumps += pi[i] * v
+		maxRate = math.Max(maxRate, v)
+	}
+	return jumps / det, maxRate, nil
 }
 
 // BootstrapResult holds the replicates of one run (a shard's share, or
@@ -96,6 +147,21 @@ func ParametricBootstrap(null *models.Model, xNull []float64, alt *models.Model,
 	if _, err := newBootSimulator(net, 0, o.Fit.Likelihood.Instrument); err != nil {
 		return nil, fmt.Errorf("bootstrap: %w", err)
 	}
+	var jobs []int
+	for b := 0; b < o.Replicates; b++ {
+		if o.Shard.Selects(b) {
+			jobs = append(jobs, b)
+		}
+	}
+	limit := o.MaxJumps
+	if limit == 0 {
+		limit = DefaultMaxJumps
+	}
+	if per, maxRate, err := jumpsPerEvent(net); err != nil {
+		return nil, fmt.Errorf("bootstrap: null model %s: %w", null.Name, err)
+	} else if n := d.Events(); limit > 0 && per*float64(n)*float64(len(jobs)) > limit {
+		return nil, &BootstrapCostError{Model: null.Name, JumpsPerEvent: per, Events: n, Replicates: len(jobs), MaxRate: maxRate, Limit: limit}
+	}
 	ctx := o.Fit.Context
 	if ctx == nil {
 		ctx = context.Background()
@@ -105,12 +171,6 @@ func ParametricBootstrap(null *models.Model, xNull []float64, alt *models.Model,
 	workers := o.Fit.Workers
 	if workers <= 0 {
 		workers = runtime.GOMAXPROCS(0)
-	}
-	var jobs []int
-	for b := 0; b < o.Replicates; b++ {
-		if o.Shard.Selects(b) {
-			jobs = append(jobs, b)
-		}
 	}
 	lr := make([]float64, len(jobs))
 	errs := make([]string, len(jobs))

@@ -1,8 +1,10 @@
 package infer
 
 import (
+	"errors"
 	"math"
 	"slices"
+	"strings"
 	"testing"
 
 	"edgewise/likelihood"
@@ -209,5 +211,66 @@ func TestReplicateSeed(t *testing.T) {
 			}
 			seen[v] = true
 		}
+	}
+}
+
+// The expected jumps per recorded event equal the simulator's own count
+// (models.Simulator.Visible returns the jumps it made) within 4 standard
+// errors of the mean over blocks (an independent route: simulation), for
+// a ring with a fast hidden pair and missed events; and a run that would
+// take too many jumps is refused before any work.
+func TestBootstrapJumpCost(t *testing.T) {
+	m := parseSpec(t, strings.Replace(strings.Replace(bootRing3, "[param.kbc]\nvalue = 2.0", "[param.kbc]\nvalue = 200.0", 1), "[param.kcb]\nvalue = 0.4", "[param.kcb]\nvalue = 300.0", 1))
+	net, err := m.Network(m.Start())
+	if err != nil {
+		t.Fatal(err)
+	}
+	net.Labels[0].Detect, net.Labels[1].Detect = 0.8, 0.8
+	per, maxRate, err := jumpsPerEvent(net)
+	if err != nil {
+		t.Fatal(err)
+	}
+	sim, err := models.NewSimulator(net, 3)
+	if err != nil {
+		t.Fatal(err)
+	}
+	sim.StartStationary()
+	sim.Steps(10000)
+	const blocks, size = 40, 500
+	var xs []float64
+	var buf []models.Event
+	for range blocks {
+		var jumps int
+		buf, jumps = sim.Visible(size, buf[:0])
+		xs = append(xs, float64(jumps)/size)
+	}
+	mean, sd := 0.0, 0.0
+	for _, x := range xs {
+		mean += x / blocks
+	}
+	for _, x := range xs {
+		sd += (x - mean) * (x - mean) / (blocks - 1)
+	}
+	se := math.Sqrt(sd / blocks)
+	t.Logf("jumps per event: predicted %.4g, simulated %.4g +- %.2g; largest exit rate %g", per, mean, se, maxRate)
+	if math.Abs(mean-per) > 4*se {
+		t.Errorf("jumps per event: predicted %.4g, simulated %.4g +- %.2g", per, mean, se)
+	}
+	if maxRate != 301.5 {
+		t.Errorf("largest exit rate %g, want kcb + kca = 301.5", maxRate)
+	}
+	d := recSimulate(t, net, 1, 1, 1000)
+	specNet, err := m.Network(m.Start()) // perfect detection, as the spec says
+	if err != nil {
+		t.Fatal(err)
+	}
+	per, _, err = jumpsPerEvent(specNet)
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, err = ParametricBootstrap(m, m.Start(), m, m.Start(), 0, d, BootstrapOptions{Replicates: 10, MaxJumps: per * 1000 * 9.5})
+	var ce *BootstrapCostError
+	if !errors.As(err, &ce) || ce.Replicates != 10 || ce.Events != 1000 {
+		t.Errorf("a run over the jump limit: %v", err)
 	}
 }

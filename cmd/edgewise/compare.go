@@ -1,6 +1,7 @@
 package main
 
 import (
+	"errors"
 	"fmt"
 	"io"
 	"math"
@@ -359,11 +360,16 @@ func cmdCompare(args []string, stdout, stderr io.Writer) int {
 		v.Boot = &bootView{Note: "the bootstrap was not run: the comparison was interrupted"}
 	} else if p.setup.Bootstrap > 0 {
 		bp, why, err := runBootstrap(c, v, p, infer.Shard{})
+		var cost *infer.BootstrapCostError
 		switch {
+		case errors.As(err, &cost):
+			v.Boot = &bootView{Note: "the bootstrap was not run: " + strings.TrimPrefix(err.Error(), "bootstrap: ")}
 		case err != nil:
 			return c.fail(1, err)
 		case bp == nil:
 			v.Boot = &bootView{Note: why}
+		case bp.Boot.Interrupted:
+			v.Boot = &bootView{Note: fmt.Sprintf("the bootstrap was interrupted after %d of %d replicates: no p-value is given", len(bp.Boot.Index), p.setup.Bootstrap)}
 		default:
 			if bp, err = roundTrip(bp); err != nil {
 				return c.fail(1, err)

@@ -69,8 +69,8 @@ func shardRun(t *testing.T, dir, prefix string, args []string, n int, extra ...s
 // A merge of 2 or of 3 shards prints the single run's report byte for byte,
 // in the terminal format and in JSON (whose stamp carries the command
 // line), the failing candidate included and marked; with --bootstrap, a
-// merge of candidate shards and bootstrap shards (another split) equals the
-// single run too.
+// merge of candidate shards and bootstrap shards (another split, one
+// worker each) equals the single run too.
 func TestMergeEqualsSingleRun(t *testing.T) {
 	dir, args := mergeFixture(t)
 	single := mustRun(t, args...)
@@ -106,7 +106,7 @@ func TestMergeEqualsSingleRun(t *testing.T) {
 		t.Fatalf("no bootstrap table:\n%s", singleBoot)
 	}
 	cand := shardRun(t, dir, "c", args, 2)
-	bparts := shardRun(t, dir, "b", boot, 3, "--fits", filepath.Join(dir, "c*.json"))
+	bparts := shardRun(t, dir, "b", boot, 3, "--fits", filepath.Join(dir, "c*.json"), "--workers", "1")
 	merged := mustRun(t, append(append([]string{"merge"}, cand...), bparts...)...)
 	if !bytes.Equal(merged, singleBoot) {
 		t.Errorf("merge with bootstrap parts differs from the single run:\n--- merge\n%s\n--- single\n%s", merged, singleBoot)
