@@ -311,7 +311,7 @@ type PlanResult struct {
 	Rows                        []PowerRow
 	// F of A's visible edge, V_F (variance of F per gap) and the events
 	// for the target SE (NaN when no SE was asked).
-	Plus, Minus       string
+	Plus, Minus        string
 	F, VF, EventsForSE float64
 	// Multicyclic says whether A has more than one cycle; FixedTime holds
 	// the departure rows then.
