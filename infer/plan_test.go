@@ -367,3 +367,229 @@ func TestNoncentralChiSquare(t *testing.T) {
 		}
 	}
 }
+
+// TestPlanPower: two-state records against the class with kba fixed at
+// c (nested, likelihood ratio on 1 df). The simulated power rises with
+// the number of events, agrees within 3 binomial SE with the target at
+// the predicted event count, and the mean fitted ln LR agrees with
+// (n - 1) KL + df/2 (Wilks: the extra parameter adds chi-square(1)/2 on
+// average; Wilks, Ann. Math. Stat. 9, 60 (1938)) within 3 SE.
+func TestPlanPower(t *testing.T) {
+	b, c := 1.0, 1.3
+	mA := planSpec(t, twoStateSpec(1.5, b, false, false))
+	mB := planSpec(t, twoStateSpec(1, c, false, true))
+	o := PlanOptions{Seed: 11, KLEvents: 40000, KLBlock: 2000, FitStarts: 2, Starts: 2, Replicates: 300}
+	pre, err := Plan(mA, mB, o)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if want := twoStateKL(b, c); math.Abs(pre.KL-want) > 3*pre.KLSE {
+		t.Fatalf("KL %.4g ± %.2g, want %.4g", pre.KL, pre.KLSE, want)
+	}
+	nPow := int(pre.EventsForPower)
+	o.Events = []int{nPow / 4, nPow, 3 * nPow}
+	res, err := Plan(mA, mB, o)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if res.EventsForPower != pre.EventsForPower {
+		t.Errorf("a power study changed the prediction: %v, %v", res.EventsForPower, pre.EventsForPower)
+	}
+	se := func(r PowerRow) float64 { return math.Sqrt(math.Max(r.Power*(1-r.Power), 0.01) / float64(r.Replicates)) }
+	for i, r := range res.Rows {
+		t.Logf("n %d: power %.3f [%.3f, %.3f], predicted %.3f; ln LR %.3g ± %.2g, expected %.3g", r.Events, r.Power, r.PowerLo, r.PowerHi, r.Predicted, r.MeanLogLR, r.SELogLR, r.ExpectedLogLR)
+		if r.Replicates+r.Failed != o.Replicates || r.Failed > 0 {
+			t.Errorf("n %d: %d replicates, %d failed", r.Events, r.Replicates, r.Failed)
+		}
+		if i > 0 && r.Power < res.Rows[i-1].Power-2*math.Hypot(se(r), se(res.Rows[i-1])) {
+			t.Errorf("power falls from %.3f to %.3f", res.Rows[i-1].Power, r.Power)
+		}
+		if want := r.ExpectedLogLR + float64(res.DF)/2; math.Abs(r.MeanLogLR-want) > 3*math.Hypot(r.SELogLR, float64(r.Events-1)*res.KLSE) {
+			t.Errorf("n %d: mean ln LR %.4g ± %.2g, (n-1) KL + df/2 = %.4g", r.Events, r.MeanLogLR, r.SELogLR, want)
+		}
+		if !(r.PowerLo <= r.Power && r.Power <= r.PowerHi) {
+			t.Errorf("interval [%v, %v] misses %v", r.PowerLo, r.PowerHi, r.Power)
+		}
+	}
+	if r := res.Rows[1]; math.Abs(r.Power-0.8) > 3*se(r) {
+		t.Errorf("at the predicted %d events the simulated power is %.3f, target 0.8", r.Events, r.Power)
+	}
+	if math.Abs(res.Rows[1].Predicted-0.8) > 0.01 {
+		t.Errorf("predicted power %.4f at the predicted event count", res.Rows[1].Predicted)
+	}
+	if !(res.Rows[2].Power > res.Rows[0].Power+0.3) {
+		t.Errorf("power does not rise: %.3f to %.3f", res.Rows[0].Power, res.Rows[2].Power)
+	}
+}
+
+// TestPlanSize: when A lies in B's class (kba = c), the likelihood-ratio
+// decision rejects B at the test's size alpha, within 3 binomial SE.
+func TestPlanSize(t *testing.T) {
+	c := 1.3
+	mA := planSpec(t, twoStateSpec(1.5, c, false, false))
+	mB := planSpec(t, twoStateSpec(1, c, false, true))
+	const R = 600
+	res, err := Plan(mA, mB, PlanOptions{Seed: 13, KLEvents: 20000, KLBlock: 2000, FitStarts: 2, Starts: 2, Replicates: R, Events: []int{300}, Alpha: 0.05})
+	if err != nil {
+		t.Fatal(err)
+	}
+	r := res.Rows[0]
+	if res.Decision != DecideLR || math.Abs(r.Power-0.05) > 3*math.Sqrt(0.05*0.95/R) {
+		t.Errorf("%v: rejection rate %.3f over %d replicates, want the size 0.05", res.Decision, r.Power, r.Replicates)
+	}
+	if res.Resolved || math.Abs(res.KL) > 3*res.KLSE {
+		t.Errorf("KL %.3g ± %.2g (resolved %v), want 0", res.KL, res.KLSE, res.Resolved)
+	}
+}
+
+// TestPlanWorkers: the result does not depend on the number of workers.
+func TestPlanWorkers(t *testing.T) {
+	mA := planSpec(t, twoStateSpec(1.5, 1, false, false))
+	mB := planSpec(t, twoStateSpec(1, 1.3, false, true))
+	var rows [][]PowerRow
+	var kl []float64
+	for _, w := range []int{1, 3} {
+		res, err := Plan(mA, mB, PlanOptions{Seed: 17, KLEvents: 8000, KLBlock: 1000, FitStarts: 2, Starts: 2, Replicates: 20, Events: []int{50, 200}, Workers: w})
+		if err != nil {
+			t.Fatal(err)
+		}
+		rows = append(rows, res.Rows)
+		kl = append(kl, res.KL, res.KLSE)
+	}
+	if kl[0] != kl[2] || kl[1] != kl[3] {
+		t.Errorf("KL differs: %v", kl)
+	}
+	for i := range rows[0] {
+		a, b := rows[0][i], rows[1][i]
+		if a.Rejections != b.Rejections || a.MeanLogLR != b.MeanLogLR || a.SELogLR != b.SELogLR {
+			t.Errorf("row %d differs: %+v, %+v", i, a, b)
+		}
+	}
+}
+
+// TestPlanFPrecision: the delta-method variance of F (design.md section
+// 7), V_F/(n - 1) with A's exact r and P(l'|l), agrees with the variance
+// of F over simulated records of the events the planner asks for a
+// standard error of 0.1, within 3 SE of a sample variance (relative SE
+// sqrt(2/(R-1)) for nearly normal values), and with the mean of the
+// per-record delta formula 1/N++ - 1/N+. + 1/N-- - 1/N-. within 5%.
+func TestPlanFPrecision(t *testing.T) {
+	for _, path := range []string{"../testdata/ring4.toml", "../testdata/compare/truth-twocycle.toml"} {
+		m := readSpec(t, path)
+		net, _ := m.Network(m.Start())
+		k, _ := likelihood.NewKernels(net)
+		p, err := likelihood.NewPredictor(k, likelihood.Instrument{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		vf := affinityVariance(p, 0, 1)
+		const target, R = 0.1, 400
+		n := int(math.Round(vf/(target*target) + 1))
+		var fs, delta moments
+		for i := range R {
+			rec, err := simulateRecord(net, likelihood.Instrument{}, uint64(500+i), n)
+			if err != nil {
+				t.Fatal(err)
+			}
+			d := &likelihood.Data{Labels: []string{"+", "-"}, Records: []likelihood.Record{rec}}
+			fs.add(pairAffinity(d, 0, 1))
+			c := TransitionCounts(d)
+			pp, mm := float64(c[0][0]), float64(c[1][1])
+			delta.add(1/pp - 1/(pp+float64(c[0][1])) + 1/mm - 1/(mm+float64(c[1][0])))
+		}
+		_, v := fs.meanVar()
+		md, _ := delta.meanVar()
+		t.Logf("%s: n %d, variance of F %.4g, planned %.4g, mean delta formula %.4g", path, n, v, target*target, md)
+		if math.Abs(v/(target*target)-1) > 3*math.Sqrt(2.0/(R-1)) {
+			t.Errorf("%s: variance of F over %d records of %d events %.4g, planned %.4g", path, R, n, v, target*target)
+		}
+		if math.Abs(md/(target*target)-1) > 0.05 {
+			t.Errorf("%s: mean delta-method variance %.4g, planned %.4g", path, md, target*target)
+		}
+	}
+}
+
+// chainSpec is a three-state chain whose visible edge S1-S2 is its only
+// way between its ends: its labels strictly alternate.
+const chainSpec = `
+name = "chain3"
+states = ["S1", "S2", "S3"]
+[[edge]]
+between = ["S1", "S2"]
+rates = ["k12", "k21"]
+labels = ["+", "-"]
+[[edge]]
+between = ["S2", "S3"]
+rates = ["k23", "k32"]
+[param.k12]
+value = 1.0
+[param.k21]
+value = 1.0
+[param.k23]
+value = 1.0
+[param.k32]
+value = 1.0
+`
+
+// TestPlanImpossible: a chain cannot produce ++ or --, which ring4 does:
+// KL is infinite and the predicted power at n events is the probability
+// that a record of n events holds such a pair, checked against the share
+// of simulated records that do (within 3 binomial SE).
+func TestPlanImpossible(t *testing.T) {
+	mA := readSpec(t, "../testdata/ring4.toml")
+	mB := planSpec(t, chainSpec)
+	res, err := Plan(mA, mB, PlanOptions{Seed: 19, KLEvents: 8000, KLBlock: 1000, FitStarts: 2, Starts: 2, Replicates: 10, Events: []int{5}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if res.Impossible == nil || !math.IsInf(res.KL, 1) || res.Rows[0].Impossible == 0 {
+		t.Fatalf("impossible %v, KL %v, rows %+v", res.Impossible, res.KL, res.Rows)
+	}
+	net, _ := mA.Network(mA.Start())
+	const n, R = 6, 4000
+	hit := 0
+	for i := range R {
+		rec, _ := simulateRecord(net, likelihood.Instrument{}, uint64(9000+i), n)
+		for k := 1; k < n; k++ {
+			if rec.Label[k] == rec.Label[k-1] {
+				hit++
+				break
+			}
+		}
+	}
+	k, _ := likelihood.NewKernels(net)
+	p, _ := likelihood.NewPredictor(k, likelihood.Instrument{})
+	netB, _ := mB.Network(mB.Start())
+	want := predictedPower(res, n, p, netB, []string{"+", "-"}, likelihood.Instrument{})
+	got := float64(hit) / R
+	if math.Abs(got-want) > 3*math.Sqrt(want*(1-want)/R) {
+		t.Errorf("records of %d events with ++ or --: %.4f simulated, %.4f predicted", n, got, want)
+	}
+}
+
+// TestPlanBadInput: different labels, a power target or size out of
+// (0, 1), and a likelihood-ratio decision between non-nested schemes are
+// refused with a message that names the problem.
+func TestPlanBadInput(t *testing.T) {
+	ring := readSpec(t, "../testdata/ring4.toml")
+	other := planSpec(t, strings.ReplaceAll(chainSpec, `["+", "-"]`, `["f", "b"]`))
+	cases := []struct {
+		b    *models.Model
+		o    PlanOptions
+		want string
+	}{
+		{other, PlanOptions{}, "same labels"},
+		{ring, PlanOptions{Power: 1.2}, "target power"},
+		{ring, PlanOptions{Power: -0.5}, "target power"},
+		{ring, PlanOptions{Alpha: 1}, "alpha"},
+		{ring, PlanOptions{SE: -1}, "standard error"},
+		{ring, PlanOptions{Events: []int{2}}, "at least 3 events"},
+		{planSpec(t, chainSpec), PlanOptions{Decision: DecideLR, KLEvents: 4000, KLBlock: 1000, FitStarts: 1}, "not nested"},
+	}
+	for _, c := range cases {
+		_, err := Plan(ring, c.b, c.o)
+		if err == nil || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("%+v: error %v, want it to say %q", c.o, err, c.want)
+		}
+	}
+}
