@@ -395,7 +395,9 @@ func TestPlanPower(t *testing.T) {
 	if res.EventsForPower != pre.EventsForPower {
 		t.Errorf("a power study changed the prediction: %v, %v", res.EventsForPower, pre.EventsForPower)
 	}
-	se := func(r PowerRow) float64 { return math.Sqrt(math.Max(r.Power*(1-r.Power), 0.01) / float64(r.Replicates)) }
+	se := func(r PowerRow) float64 {
+		return math.Sqrt(math.Max(r.Power*(1-r.Power), 0.01) / float64(r.Replicates))
+	}
 	for i, r := range res.Rows {
 		t.Logf("n %d: power %.3f [%.3f, %.3f], predicted %.3f; ln LR %.3g ± %.2g, expected %.3g", r.Events, r.Power, r.PowerLo, r.PowerHi, r.Predicted, r.MeanLogLR, r.SELogLR, r.ExpectedLogLR)
 		if r.Replicates+r.Failed != o.Replicates || r.Failed > 0 {
