@@ -151,8 +151,11 @@ type PlanOptions struct {
 	// data-informed start).
 	FitStarts, Starts int
 	// Events lists the event counts of the power study (one record of n
-	// events per replicate); empty: no power simulation.
-	Events []int
+	// events per replicate); empty: no power simulation, unless
+	// AutoEvents asks for the predicted event count for the target power
+	// with half and twice it (each at most MaxAutoEvents).
+	Events     []int
+	AutoEvents bool
 	// Replicates per event count (default 200).
 	Replicates int
 	// Decision rule; Alpha is the size of the likelihood-ratio test
@@ -318,6 +321,20 @@ type PlanResult struct {
 	Multicyclic bool
 	FixedTime   []FixedTimeRow
 	Notes       []string
+
+	// For PredictedPower.
+	pA     *likelihood.Predictor
+	netB   *models.Network
+	labels []string
+}
+
+// PredictedPower returns the predicted power at n events (see the notes
+// above Decision); NaN for n < 2.
+func (r *PlanResult) PredictedPower(n float64) float64 {
+	if n < 2 || r.pA == nil {
+		return math.NaN()
+	}
+	return predictedPower(r, n, r.pA, r.netB, r.labels, r.Options.Instrument)
 }
 
 // Plan computes how many visible events tell scheme B from scheme A when
@@ -359,6 +376,7 @@ func Plan(a, b *models.Model, o PlanOptions) (*PlanResult, error) {
 		labels[i] = l.Name
 	}
 	prog := newProgress(o.Progress)
+	res.pA, res.netB, res.labels = pA, netB, labels
 
 	// Labels and F.
 	plus, minus, err := planEdge(pA, labels, o.Plus, o.Minus)
@@ -458,12 +476,47 @@ func Plan(a, b *models.Model, o PlanOptions) (*PlanResult, error) {
 	}
 
 	// Power study.
+	if len(o.Events) == 0 && o.AutoEvents {
+		o.Events = autoEvents(res.EventsForPower)
+		res.Options.Events = o.Events
+		if len(o.Events) == 0 {
+			res.Notes = append(res.Notes, fmt.Sprintf("no power simulation: the predicted event count for power %g is %s, beyond the %g events simulated without --events", o.Power, eventsText(res.EventsForPower), float64(MaxAutoEvents)))
+		}
+	}
 	if len(o.Events) > 0 {
 		if err := powerStudy(res, a, b, netA, netB, labels, plus, minus, o, prog); err != nil {
 			return nil, err
 		}
 	}
 	return res, nil
+}
+
+// MaxAutoEvents caps the event counts AutoEvents chooses.
+const MaxAutoEvents = 1000000
+
+// autoEvents returns half, one and twice n (n itself exact, the others to
+// two significant digits), those between 3 and MaxAutoEvents.
+func autoEvents(n float64) []int {
+	var out []int
+	for _, f := range []float64{0.5, 1, 2} {
+		v := n * f
+		if f != 1 && v >= 100 {
+			p := math.Pow(10, math.Floor(math.Log10(v))-1)
+			v = math.Round(v/p) * p
+		}
+		v = math.Ceil(v)
+		if v >= 3 && v <= MaxAutoEvents && !slices.Contains(out, int(v)) {
+			out = append(out, int(v))
+		}
+	}
+	return out
+}
+
+func eventsText(n float64) string {
+	if math.IsInf(n, 1) {
+		return "unbounded"
+	}
+	return strconv.FormatFloat(n, 'g', 3, 64)
 }
 
 // sameLabels refuses A and B whose visible labels differ.

@@ -85,7 +85,7 @@ func TestGolden(t *testing.T) {
 func TestJSONSchema(t *testing.T) {
 	c := jsonschema.NewCompiler()
 	schemas := map[string]*jsonschema.Schema{}
-	for _, cmd := range []string{"describe", "inspect", "fluct", "predict", "fit", "compare"} {
+	for _, cmd := range []string{"describe", "inspect", "fluct", "predict", "fit", "compare", "plan"} {
 		s, err := c.Compile(filepath.Join("..", "..", "docs", "schema", cmd+".json"))
 		if err != nil {
 			t.Fatalf("%s: %v", cmd, err)

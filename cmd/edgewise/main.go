@@ -46,6 +46,8 @@ func run(args []string, stdout, stderr io.Writer) int {
 		return cmdFit(args[1:], stdout, stderr)
 	case "compare":
 		return cmdCompare(args[1:], stdout, stderr)
+	case "plan":
+		return cmdPlan(args[1:], stdout, stderr)
 	case "help", "-h", "--help":
 		if len(args) > 1 && args[0] == "help" {
 			if _, ok := commands[args[1]]; ok {
@@ -78,6 +80,7 @@ Commands:
   predict   what a model predicts for data through an instrument, and how records compare
   fit       maximum-likelihood fit of one hidden network to records, with intervals
   compare   fit and rank candidate networks; rule out the inconsistent ones
+  plan      how many visible events tell scheme B from scheme A (power, KL rate)
   version   print the tool version
   help      show this help; "edgewise help CMD" is "edgewise CMD --help"
 
@@ -114,7 +117,7 @@ func parseFlags(fs *pflag.FlagSet, args []string) int {
 }
 
 // commands lists the subcommands, for "edgewise help CMD".
-var commands = map[string]bool{"describe": true, "simulate": true, "inspect": true, "fluct": true, "predict": true, "fit": true, "compare": true}
+var commands = map[string]bool{"describe": true, "simulate": true, "inspect": true, "fluct": true, "predict": true, "fit": true, "compare": true, "plan": true}
 
 // loadModel reads and parses a model spec and builds its network at the
 // start values. src is returned for the checksum stamped on outputs.
