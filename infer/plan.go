@@ -753,7 +753,7 @@ func decide(res *PlanResult, a, b *models.Model, o PlanOptions) error {
 	if nested && res.DF < 1 {
 		res.Notes = append(res.Notes, fmt.Sprintf("B (%s) is nested in A's class but the long fits determine as many parameter combinations in each", b.Name))
 	}
-	if _, _, aInB := nestedIn(a, b); aInB || (res.DF < 0 && res.Resolved && res.KL < 3*res.KLSE) {
+	if _, _, aInB := nestedIn(a, b); aInB {
 		res.Notes = append(res.Notes, "A's class lies within B's: B fits A's records as well as A does, so no amount of data rules B out; a BIC preference for A is a penalty on B's extra parameters, not evidence against it")
 	}
 	return nil

@@ -55,44 +55,6 @@ value = ` + ftoa(kab) + "\n"
 
 func ftoa(x float64) string { return strconv.FormatFloat(x, 'f', -1, 64) }
 
-// ring4Eq is testdata/ring4.toml with its cycle affinity held at 0 (k14
-// solved): an equilibrium ring, nested in the free ring.
-const ring4Eq = `
-name = "ring4eq"
-states = ["S1", "S2", "S3", "S4"]
-[[edge]]
-between = ["S1", "S2"]
-rates = ["k12", "k21"]
-labels = ["+", "-"]
-[[edge]]
-between = ["S2", "S3"]
-rates = ["k23", "k32"]
-[[edge]]
-between = ["S3", "S4"]
-rates = ["k34", "k43"]
-[[edge]]
-between = ["S4", "S1"]
-rates = ["k41", "k14"]
-[param.k12]
-value = 2.0
-[param.k21]
-value = 1.0
-[param.k23]
-value = 1.5
-[param.k32]
-value = 1.2
-[param.k34]
-value = 1.0
-[param.k43]
-value = 0.9
-[param.k41]
-value = 1.2
-[[affinity]]
-cycle = ["S1", "S2", "S3", "S4", "S1"]
-value = 0.0
-solve = "k14"
-`
-
 // ring4Renamed is testdata/ring4.toml with other state names, the edges
 // in another order and the ring written the other way round: another
 // parametrisation of the same visible process.
@@ -287,7 +249,7 @@ func TestPlanExactKLTwoState(t *testing.T) {
 // within 3 standard errors of both.
 func TestPlanRingKL(t *testing.T) {
 	mA := readSpec(t, "../testdata/ring4.toml")
-	mB := planSpec(t, ring4Eq)
+	mB := readSpec(t, "../testdata/plan/ring4-eq.toml") // ring4 with its affinity held at 0
 	res, err := Plan(mA, mB, PlanOptions{Seed: 7, KLEvents: 60000, FitStarts: 2})
 	if err != nil {
 		t.Fatal(err)
