@@ -713,8 +713,11 @@ func klRate(res *PlanResult, netA *models.Network, long *likelihood.Data, o Plan
 	if res.Resolved {
 		res.EventsFor10 = 10/res.KL + 1
 	} else {
-		res.EventsFor10 = 10/math.Max(res.KL+2*res.KLSE, 1e-300) + 1
-		res.Notes = append(res.Notes, fmt.Sprintf("the KL rate %.3g ± %.2g nats per event is within 2 standard errors of 0: B's class holds A's visible process, or comes closer to it than %d simulated events resolve; at least %.3g events are needed for an expected log-likelihood ratio of 10", res.KL, res.KLSE, res.KLRecords*o.KLBlock, res.EventsFor10))
+		res.EventsFor10 = math.Inf(1)
+		if b := res.KL + 2*res.KLSE; b > 0 {
+			res.EventsFor10 = 10/b + 1
+		}
+		res.Notes = append(res.Notes, fmt.Sprintf("the KL rate %.3g ± %.2g nats per event is within 2 standard errors of 0: B's class holds A's visible process, or comes closer to it than %d simulated events resolve; at least %s events are needed for an expected log-likelihood ratio of 10", res.KL, res.KLSE, res.KLRecords*o.KLBlock, eventsText(res.EventsFor10)))
 	}
 	return nil
 }
@@ -828,11 +831,7 @@ func NoncentralChiSquareSF(x, df, lambda float64) float64 {
 func predictedPower(res *PlanResult, n float64, pA *likelihood.Predictor, netB *models.Network, labels []string, in likelihood.Instrument) float64 {
 	g := n - 1
 	if res.Impossible != nil {
-		s, err := survivalWithout(pA, netB, labels, in, int(math.Min(g, 1e7)))
-		if err != nil {
-			return math.NaN()
-		}
-		return 1 - s
+		return impossiblePower(res, int(math.Min(g, maxSurvivalGaps)))
 	}
 	kl := math.Max(res.KL, 0)
 	var c float64
@@ -862,11 +861,14 @@ func eventsForPower(res *PlanResult, target float64, pA *likelihood.Predictor, n
 	if res.Impossible == nil && !res.Resolved {
 		return math.Inf(1)
 	}
+	if res.Impossible != nil {
+		return impossibleEvents(res, target)
+	}
 	pw := func(n float64) float64 { return predictedPower(res, n, pA, netB, labels, in) }
 	lo, hi := 2.0, 4.0
 	for pw(hi) < target {
 		lo, hi = hi, 2*hi
-		if hi > 1e12 || (res.Impossible != nil && hi > 1e7) {
+		if hi > 1e12 {
 			return math.Inf(1)
 		}
 	}
@@ -881,67 +883,107 @@ func eventsForPower(res *PlanResult, target float64, pA *likelihood.Predictor, n
 	return hi
 }
 
-// survivalWithout returns the probability that g consecutive gaps of a
+// pairSurvival follows the probability that consecutive gaps of a
 // stationary record of A hold no label pair that B cannot produce: the
 // forward recursion over (last label, state after it),
 //
 //	v_{l'} = sum_{l: (l, l') possible under B} v_l M_{l'},   v_l(start) = r_l alpha_l,
 //
 // with M_l the embedded matrices and alpha_l the post-l state laws of A
-// (exact for any labels).
-func survivalWithout(pA *likelihood.Predictor, netB *models.Network, labels []string, in likelihood.Instrument, g int) (float64, error) {
+// (exact for any labels); the survival after g gaps is sum_l v_l 1.
+type pairSurvival struct {
+	ok   [][]bool
+	ms   []*mat.Dense
+	v    []*mat.VecDense
+	gaps int
+}
+
+func newPairSurvival(pA *likelihood.Predictor, netB *models.Network, labels []string, in likelihood.Instrument) (*pairSurvival, error) {
 	kB, err := likelihood.NewKernels(netB)
 	if err != nil {
-		return math.NaN(), err
+		return nil, err
 	}
 	pB, err := likelihood.NewPredictor(kB, in)
 	if err != nil {
-		return math.NaN(), err
+		return nil, err
 	}
 	tb := pB.Transition()
 	nl := len(labels)
-	ok := make([][]bool, nl)
-	for i := range ok {
-		ok[i] = make([]bool, nl)
-		for j := range ok[i] {
-			ok[i][j] = tb[netB.LabelIndex(labels[i])][netB.LabelIndex(labels[j])] > 0
-		}
-	}
+	ps := &pairSurvival{ok: make([][]bool, nl), ms: make([]*mat.Dense, nl), v: make([]*mat.VecDense, nl)}
 	r := pA.LabelLaw()
-	ms := make([]*mat.Dense, nl)
-	v := make([]*mat.VecDense, nl)
-	for l := range nl {
-		ms[l] = pA.Embedded(l)
-		v[l] = mat.NewVecDense(len(pA.Stationary()), pA.PostEventLaw(l))
-		v[l].ScaleVec(r[l], v[l])
-	}
 	n := len(pA.Stationary())
-	for range g {
-		next := make([]*mat.VecDense, nl)
-		for lp := range nl {
-			acc := mat.NewVecDense(n, nil)
-			for l := range nl {
-				if ok[l][lp] {
-					acc.AddVec(acc, v[l])
-				}
-			}
-			next[lp] = mat.NewVecDense(n, nil)
-			next[lp].MulVec(ms[lp].T(), acc)
-		}
-		v = next
-		s := 0.0
-		for l := range nl {
-			s += mat.Sum(v[l])
-		}
-		if s < 1e-12 {
-			return s, nil
-		}
-	}
-	s := 0.0
 	for l := range nl {
-		s += mat.Sum(v[l])
+		ps.ok[l] = make([]bool, nl)
+		for j := range nl {
+			ps.ok[l][j] = tb[netB.LabelIndex(labels[l])][netB.LabelIndex(labels[j])] > 0
+		}
+		ps.ms[l] = pA.Embedded(l)
+		ps.v[l] = mat.NewVecDense(n, pA.PostEventLaw(l))
+		ps.v[l].ScaleVec(r[l], ps.v[l])
 	}
-	return s, nil
+	return ps, nil
+}
+
+// step advances one gap.
+func (ps *pairSurvival) step() {
+	nl := len(ps.v)
+	n := ps.v[0].Len()
+	next := make([]*mat.VecDense, nl)
+	acc := mat.NewVecDense(n, nil)
+	for lp := range nl {
+		acc.Zero()
+		for l := range nl {
+			if ps.ok[l][lp] {
+				acc.AddVec(acc, ps.v[l])
+			}
+		}
+		next[lp] = mat.NewVecDense(n, nil)
+		next[lp].MulVec(ps.ms[lp].T(), acc)
+	}
+	ps.v = next
+	ps.gaps++
+}
+
+// survival returns the probability that the gaps so far hold no
+// impossible pair.
+func (ps *pairSurvival) survival() float64 {
+	s := 0.0
+	for _, v := range ps.v {
+		s += mat.Sum(v)
+	}
+	return s
+}
+
+// maxSurvivalGaps caps the recursion of pairSurvival.
+const maxSurvivalGaps = 10000000
+
+// impossiblePower returns 1 - survival after g gaps.
+func impossiblePower(res *PlanResult, g int) float64 {
+	ps, err := newPairSurvival(res.pA, res.netB, res.labels, res.Options.Instrument)
+	if err != nil {
+		return math.NaN()
+	}
+	for ps.gaps < min(g, maxSurvivalGaps) && ps.survival() > 1e-15 {
+		ps.step()
+	}
+	return 1 - ps.survival()
+}
+
+// impossibleEvents returns the least event count whose records hold an
+// impossible pair with probability at least target (+Inf beyond
+// maxSurvivalGaps).
+func impossibleEvents(res *PlanResult, target float64) float64 {
+	ps, err := newPairSurvival(res.pA, res.netB, res.labels, res.Options.Instrument)
+	if err != nil {
+		return math.NaN()
+	}
+	for 1-ps.survival() < target {
+		if ps.gaps >= maxSurvivalGaps {
+			return math.Inf(1)
+		}
+		ps.step()
+	}
+	return float64(ps.gaps + 1)
 }
 
 // fixedTimeRows computes the fixed-time departure for each window length.

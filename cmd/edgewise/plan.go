@@ -255,6 +255,9 @@ func eventsCell(n float64, why string) output.Cell {
 	if math.IsInf(n, 1) || math.IsNaN(n) {
 		return output.Undefined(why)
 	}
+	if n > 1e15 {
+		return output.Undefined("more than 1e15 events")
+	}
 	return output.Count(int(math.Ceil(n)))
 }
 
