@@ -16,99 +16,6 @@ import (
 	"gonum.org/v1/gonum/stat/distuv"
 )
 
-// Planning an experiment: how many visible events tell scheme B from
-// scheme A when A is true.
-//
-// # Kullback-Leibler rate
-//
-// The per-event Kullback-Leibler rate of A's visible process against the
-// closest member of B's class is
-//
-//	KL = lim (1/n) E_A[ ln L_A(x_1..x_n) - ln L_B*(x_1..x_n) ],   B* = argmin over B's class,
-//
-// in nats per gap (a gap is an event after the first: each record's first
-// event is conditioned on, as in every fit). No closed form exists for
-// hidden networks, so Plan measures it on a long simulation of A:
-// KLEvents events (default 200000) in independent stationary records of
-// KLBlock events (default 5000, far longer than the labels' memory), each
-// with its own seed. B's class is fitted (Fit) to the first half of the
-// records; the rate is the mean over all records b of
-//
-//	d_b = [ln L_A(record b) - ln L_B^(record b)] / (gaps of record b),
-//
-// with A at its spec values. Over the fitted half d_b is biased low by the
-// fit's optimism, about t/(2 n_1) per gap (t = tr(J^-1 K), the number of
-// B's parameters when B holds A; Takeuchi's correction); over the held-out
-// half it is biased high by the same amount to first order (the fitted B
-// is off its best member by a deviation of the same size), so the mean of
-// the two halves cancels the bias to first order. Its Monte Carlo standard
-// error is the spread of the d_b: SE = sd(d_b)/sqrt(records) (the records
-// are independent). sigma^2 = Var(n_b d_b)/n_b is the variance rate of the
-// log-likelihood ratio per gap, which the normal approximation of its law
-// uses (Vuong, Econometrica 57, 307 (1989), eq. 3.3: for non-nested
-// models the log-likelihood ratio of n gaps is asymptotically normal with
-// mean n KL and variance n sigma^2).
-//
-// # Expected log-likelihood ratio and events
-//
-// A record of n events has n - 1 gaps and expected log-likelihood ratio
-// (n - 1) KL; telling the schemes apart by 10 nats (design.md section 7)
-// needs n_10 = 10/KL + 1 events. When KL is within 2 standard errors of 0
-// the simulation cannot resolve it, and only the bound n_10 >= 10/(KL +
-// 2 SE) + 1 is given.
-//
-// # Power
-//
-// Replicates of n events are simulated from A (one stationary record
-// each, with a seed derived from Seed, the event count and the replicate,
-// so the result does not depend on the number of workers), and both A's
-// class (A's spec with its free parameters, started at A's values) and
-// B's class (started at the fitted best member) are fitted to each. The
-// decision rejects B in favour of A's class:
-//
-//   - likelihood ratio (B nested in A's class, NestedTests' rule): when
-//     2 ln LR > c, c the 1 - Alpha quantile of chi-square on df = k_A - k_B
-//     degrees of freedom (chi-bar-square when B holds rates of A at zero;
-//     Self and Liang, JASA 82, 605 (1987));
-//   - BIC (any pair): when BIC_A < BIC_B, i.e. 2 ln LR > (k_A - k_B) ln(n - 1)
-//     with the effective numbers of parameters of each fit (as compare).
-//
-// The power at n is the share of replicates that reject B, with its
-// Clopper-Pearson 95% interval. The predicted power uses, for df >= 1,
-// the noncentral chi-square law of 2 ln LR on df degrees of freedom with
-// noncentrality lambda = 2 (n - 1) KL (Wald, Trans. AMS 54, 426 (1943);
-// Self, Mauritsen and Ohara, Biometrics 48, 31 (1992)), and otherwise the
-// normal law of mean 2 (n - 1) KL + k_A - k_B and variance
-// 4 (n - 1) sigma^2 (Vuong 1989). The events for the target power solve
-// predicted power = Power.
-//
-// # Precision of F
-//
-// With A's exact label law r_l and P(l'|l) (likelihood.Predictor), the
-// delta-method variance of the data's F = ln[P(+|+)/P(-|-)] (design.md
-// section 7),
-//
-//	Var(F) ~ 1/N_{++} - 1/N_{+.} + 1/N_{--} - 1/N_{-.},   N_{ll'} ~ (n - 1) r_l P(l'|l),
-//
-// is V_F/(n - 1) with V_F = 1/(r_+ P_{++}) - 1/r_+ + 1/(r_- P_{--}) - 1/r_-,
-// the exact asymptotic variance when the labels form a first-order Markov
-// chain (each label on one directed edge); the events for a standard
-// error s are V_F/s^2 + 1. Each power replicate also gives the data's F,
-// so the table holds the simulated spread of F beside the prediction.
-//
-// # Fixed-time departure
-//
-// For a multicyclic A the slope of ln[P_t(c)/P_t(-c)] over windows of a
-// fixed duration t (SymmetrySlope of the exact fixed-time law,
-// Predictor.FixedTime) differs from F, the exact count-stopped slope. A
-// record of n events cut into windows of m events on average (t = m times
-// the mean gap) holds W = n/m windows; the data's fixed-time slope has
-// variance SlopeVar/W (SlopeEstimand) and F has V_F/n, so the departure
-// Delta = slope_t - F is seen at 3 standard errors (both taken as
-// independent: conservative, as the data side's fallback) after
-//
-//	n_3 = 9 (m SlopeVar + V_F) / Delta^2 events.
-
 // Decision names the rule that tells B from A in the power study.
 type Decision int
 
@@ -244,7 +151,7 @@ type PowerRow struct {
 	Events int
 	// ExpectedLogLR is (n - 1) KL, nats.
 	ExpectedLogLR float64
-	// Predicted is the predicted power (see the package notes above Plan).
+	// Predicted is the predicted power (see Plan).
 	Predicted float64
 	// Replicates that gave a decision, Rejections of B among them, and
 	// Failed replicates (a fit failed; left out of the power).
@@ -328,8 +235,8 @@ type PlanResult struct {
 	labels []string
 }
 
-// PredictedPower returns the predicted power at n events (see the notes
-// above Decision); NaN for n < 2.
+// PredictedPower returns the predicted power at n events (see Plan); NaN
+// for n < 2.
 func (r *PlanResult) PredictedPower(n float64) float64 {
 	if n < 2 || r.pA == nil {
 		return math.NaN()
@@ -338,9 +245,108 @@ func (r *PlanResult) PredictedPower(n float64) float64 {
 }
 
 // Plan computes how many visible events tell scheme B from scheme A when
-// A, at its spec values, is true (see the notes above Decision for the
-// method). A's free parameters are taken at their spec values (a note
-// says so). A and B must have the same visible labels.
+// A, at its spec values, is true. A's free parameters are taken at their
+// spec values (a note says so). A and B must have the same visible
+// labels.
+//
+// # Kullback-Leibler rate
+//
+// The per-event Kullback-Leibler rate of A's visible process against the
+// closest member of B's class is
+//
+//	KL = lim (1/n) E_A[ ln L_A(x_1..x_n) - ln L_B*(x_1..x_n) ],   B* = argmin over B's class,
+//
+// in nats per gap (a gap is an event after the first: each record's first
+// event is conditioned on, as in every fit). No closed form exists for
+// hidden networks, so Plan measures it on a long simulation of A:
+// KLEvents events (default 200000) in independent stationary records of
+// KLBlock events (default 5000, far longer than the labels' memory), each
+// with its own seed. B's class is fitted (Fit) to the first half of the
+// records; the rate is the mean over all records b of
+//
+//	d_b = [ln L_A(record b) - ln L_B^(record b)] / (gaps of record b),
+//
+// with A at its spec values. Over the fitted half d_b is biased low by the
+// fit's optimism, about t/(2 n_1) per gap (t = tr(J^-1 K), the number of
+// B's parameters when B holds A, as in Takeuchi's information criterion); over the held-out
+// half it is biased high by the same amount to first order (the fitted B
+// is off its best member by a deviation of the same size), so the mean of
+// the two halves cancels the bias to first order. Its Monte Carlo standard
+// error is the spread of the d_b: SE = sd(d_b)/sqrt(records) (the records
+// are independent). sigma^2 = Var(n_b d_b)/n_b is the variance rate of the
+// log-likelihood ratio per gap, which the normal approximation of its law
+// uses (Vuong, Econometrica 57, 307 (1989), eq. 3.3: for non-nested
+// models the log-likelihood ratio of n gaps is asymptotically normal with
+// mean n KL and variance n sigma^2).
+//
+// # Expected log-likelihood ratio and events
+//
+// A record of n events has n - 1 gaps and expected log-likelihood ratio
+// (n - 1) KL; telling the schemes apart by 10 nats (design.md section 7)
+// needs n_10 = 10/KL + 1 events. When KL is within 2 standard errors of 0
+// the simulation cannot resolve it, and only the bound n_10 >= 10/(KL +
+// 2 SE) + 1 is given.
+//
+// # Power
+//
+// Replicates of n events are simulated from A (one stationary record
+// each, with a seed derived from Seed, the event count and the replicate,
+// so the result does not depend on the number of workers), and both A's
+// class (A's spec with its free parameters, started at A's values) and
+// B's class (started at the fitted best member) are fitted to each. The
+// decision rejects B in favour of A's class:
+//
+//   - likelihood ratio (B nested in A's class, NestedTests' rule): when
+//     2 ln LR > c, c the 1 - Alpha quantile of chi-square on df = k_A - k_B
+//     degrees of freedom (chi-bar-square when B holds rates of A at zero;
+//     Self and Liang, JASA 82, 605 (1987));
+//   - BIC (any pair): when BIC_A < BIC_B, i.e. 2 ln LR > (k_A - k_B) ln(n - 1)
+//     with the effective numbers of parameters of each fit (as compare).
+//
+// The power at n is the share of replicates that reject B, with its
+// Clopper-Pearson 95% interval. The predicted power uses, for df >= 1,
+// the noncentral chi-square law of 2 ln LR on df degrees of freedom with
+// noncentrality lambda = 2 (n - 1) KL (Wald, Trans. AMS 54, 426 (1943);
+// Self, Mauritsen and Ohara, Biometrics 48, 31 (1992)), and otherwise the
+// normal law of mean 2 (n - 1) KL + k_A - k_B and variance
+// 4 (n - 1) sigma^2 (Vuong 1989). The events for the target power solve
+// predicted power = Power.
+//
+// # Precision of F
+//
+// With A's exact label law r_l and P(l'|l) (likelihood.Predictor), the
+// delta-method variance of the data's F = ln[P(+|+)/P(-|-)] (design.md
+// section 7),
+//
+//	Var(F) ~ 1/N_{++} - 1/N_{+.} + 1/N_{--} - 1/N_{-.},   N_{ll'} ~ (n - 1) r_l P(l'|l),
+//
+// is V_F/(n - 1) with V_F = 1/(r_+ P_{++}) - 1/r_+ + 1/(r_- P_{--}) - 1/r_-,
+// the exact asymptotic variance when the labels form a first-order Markov
+// chain (each label on one directed edge); the events for a standard
+// error s are V_F/s^2 + 1. Each power replicate also gives the data's F,
+// so the table holds the simulated spread of F beside the prediction.
+//
+// # Fixed-time departure
+//
+// For a multicyclic A the slope of ln[P_t(c)/P_t(-c)] over windows of a
+// fixed duration t (SymmetrySlope of the exact fixed-time law,
+// Predictor.FixedTime) differs from F, the exact count-stopped slope. A
+// record of n events cut into windows of m events on average (t = m times
+// the mean gap) holds W = n/m windows; the data's fixed-time slope has
+// variance SlopeVar/W (SlopeEstimand) and F has V_F/n, so the departure
+// Delta = slope_t - F is seen at 3 standard errors (both taken as
+// independent: conservative, as the data side's fallback) after
+//
+//	n_3 = 9 (m SlopeVar + V_F) / Delta^2 events.
+//
+// # Label pairs B cannot produce
+//
+// When A produces a label pair (l, l') that B cannot produce at any rates
+// (P_B(l'|l) = 0 by B's graph, e.g. ++ for a chain), the KL rate is
+// infinite and the first such pair rules B out: the predicted power at n
+// events is the probability that n - 1 gaps of A hold such a pair, from
+// an exact forward recursion over (last label, state after it) with A's
+// embedded matrices.
 func Plan(a, b *models.Model, o PlanOptions) (*PlanResult, error) {
 	if err := o.defaults(); err != nil {
 		return nil, fmt.Errorf("plan: %w", err)
@@ -786,7 +792,8 @@ func chiBarSquareQuantile(p float64, df, k int) float64 {
 // df > 0 degrees of freedom with noncentrality lambda >= 0, as the Poisson
 // mixture sum_j Pois(j; lambda/2) P(chi2_{df+2j} > x) (Johnson, Kotz and
 // Balakrishnan, Continuous Univariate Distributions vol. 2, 2nd ed.,
-// eq. 29.2), summed outwards from the Poisson mode until the terms and
+// chapter 29, cited from memory; checked in the tests against the df = 1
+// closed form and a convolution), summed outwards from the Poisson mode until the terms and
 // the weights fall below 1e-17 of their totals.
 func NoncentralChiSquareSF(x, df, lambda float64) float64 {
 	if x <= 0 {
@@ -826,8 +833,7 @@ func NoncentralChiSquareSF(x, df, lambda float64) float64 {
 	return math.Min(1, math.Max(0, sum/wsum))
 }
 
-// predictedPower is the predicted power at n events (see the notes above
-// Decision).
+// predictedPower is the predicted power at n events (see Plan).
 func predictedPower(res *PlanResult, n float64, pA *likelihood.Predictor, netB *models.Network, labels []string, in likelihood.Instrument) float64 {
 	g := n - 1
 	if res.Impossible != nil {
