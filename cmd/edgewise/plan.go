@@ -270,7 +270,11 @@ func planTables(r *output.Report, res *infer.PlanResult, u output.TimeUnit) {
 	if res.Impossible != nil {
 		klNote = fmt.Sprintf("B cannot produce %q followed by %q, which A does", res.Impossible.From, res.Impossible.To)
 	}
-	st.Add("KL", "KL rate of A against B's closest member (nats per event)", output.Num(res.KL).WithNote(klNote), output.Num(res.KLSE))
+	klSE := output.Num(res.KLSE)
+	if res.Impossible != nil {
+		klSE = output.Empty()
+	}
+	st.Add("KL", "KL rate of A against B's closest member (nats per event)", output.Num(res.KL).WithNote(klNote), klSE)
 	if res.Impossible == nil {
 		st.Add("sigma2", "variance of ln LR per event", output.Num(res.Sigma2).WithNote("from the spread over the records; the normal prediction of power uses it"), output.Empty())
 	}
@@ -364,7 +368,9 @@ func planTables(r *output.Report, res *infer.PlanResult, u output.TimeUnit) {
 	for _, n := range res.Notes {
 		r.Note("%s", n)
 	}
-	r.Note("KL rate: B fitted to half of a long simulation of A, ln L_A - ln L_B averaged over both halves (their first-order biases cancel); SE from the spread over the records")
+	if res.Impossible == nil {
+		r.Note("KL rate: B fitted to half of a long simulation of A, ln L_A - ln L_B averaged over both halves (their first-order biases cancel); SE from the spread over the records")
+	}
 }
 
 // powerPanel draws the simulated power (points with 95% bars) and the

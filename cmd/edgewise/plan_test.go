@@ -117,3 +117,38 @@ func TestPlanBadInput(t *testing.T) {
 		}
 	}
 }
+
+// TestPlanImpossibleCommand: against a chain (labels strictly alternate)
+// ring4's records hold ++ pairs: the KL rate is infinite, the first such
+// pair rules the chain out, and the report says so.
+func TestPlanImpossibleCommand(t *testing.T) {
+	chain := filepath.Join(t.TempDir(), "chain.toml")
+	os.WriteFile(chain, []byte(`name = "chain3"
+states = ["S1", "S2", "S3"]
+[[edge]]
+between = ["S1", "S2"]
+rates = ["k12", "k21"]
+labels = ["+", "-"]
+[[edge]]
+between = ["S2", "S3"]
+rates = ["k23", "k32"]
+[param.k12]
+value = 1.0
+[param.k21]
+value = 1.0
+[param.k23]
+value = 1.0
+[param.k32]
+value = 1.0
+`), 0o644)
+	r := runJSON(t, append([]string{"plan", "../../testdata/ring4.toml", chain, "--events", "5", "--replicates", "10"}, planFast...)...)
+	if kl := r.num(t, "summary", "KL", "value"); !math.IsInf(kl, 1) {
+		t.Errorf("KL %v, want +inf", kl)
+	}
+	if n := r.num(t, "summary", "events_lnLR_10", "value"); n != 2 {
+		t.Errorf("events for ln LR 10: %v, want 2", n)
+	}
+	if !strings.Contains(strings.Join(r.Notes, " "), `cannot produce "+" followed by "+"`) {
+		t.Errorf("notes %q", r.Notes)
+	}
+}
