@@ -108,7 +108,7 @@ func TestJSONSchema(t *testing.T) {
 		{"predict", "../../testdata/shared-label.toml"},
 		{"fit", "../../testdata/ring3-demo.csv", "../../testdata/ring3.toml", "--starts", "2"},
 		{"compare", "../../testdata/ring3-demo.csv", "../../testdata/ring3.toml", "--chains", "2", "--starts", "2"},
-		{"plan", "../../testdata/ring3.toml", "../../testdata/ring3.toml", "--events", "200", "--replicates", "2", "--kl-events", "2000", "--starts", "1", "--se", "0.1"},
+		{"plan", "../../testdata/ring3.toml", "../../testdata/ring3.toml", "--events", "200", "--replicates", "2", "--kl-events", "20000", "--starts", "1", "--se", "0.1"},
 	} {
 		out := runOut(t, append(args, "--format", "json")...)
 		inst, err := jsonschema.UnmarshalJSON(bytes.NewReader(out))

@@ -81,7 +81,7 @@ func TestFitBadInput(t *testing.T) {
 		{[]string{"fit", "../../testdata/ring3-demo.csv", "../../testdata/ring3.toml", "--starts", "0"}, 2, "--starts"},
 		{[]string{"compare", "../../testdata/ring3-demo.csv"}, 2, "no candidates"},
 		{[]string{"plan", "../../testdata/ring3.toml", "../../testdata/ring3.toml", "--power", "1.2"}, 2, "--power"},
-		{[]string{"plan", "../../testdata/ring3.toml", "../../testdata/balanced.toml"}, 1, "same visible transitions"},
+		{[]string{"plan", "../../testdata/ring3.toml", "../../testdata/balanced.toml"}, 1, "with the same labels"},
 		{[]string{"compare", "../../testdata/ring3-demo.csv", "--chords", "3"}, 2, "make no candidate"},
 	} {
 		var out, errb bytes.Buffer
