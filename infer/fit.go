@@ -531,28 +531,7 @@ func preconditioner(ob *objective, u0 []float64) *mat.Dense {
 			h.SetSym(i, j, (a+b)/2)
 		}
 	}
-	var es mat.EigenSym
-	if !es.Factorize(h, true) {
-		return nil
-	}
-	lam := es.Values(nil)
-	var vec mat.Dense
-	es.VectorsTo(&vec)
-	lmax := 0.0
-	for _, l := range lam {
-		lmax = math.Max(lmax, l)
-	}
-	if !(lmax > 0) {
-		return nil
-	}
-	pre := mat.NewDense(p, p, nil)
-	for k, l := range lam {
-		s := 1 / math.Sqrt(math.Max(l, 1e-6*lmax))
-		for i := 0; i < p; i++ {
-			pre.Set(i, k, vec.At(i, k)*s)
-		}
-	}
-	return pre
+	return invSqrt(h)
 }
 
 // markBounds flags parameters at or running to a bound: a bounded

@@ -250,3 +250,33 @@ func unitStepBFGS(ctx context.Context, ec *evalCache, toV func([]float64) []floa
 	}
 	return runOutcome{}, false
 }
+
+// invSqrt returns V diag(lambda^-1/2) for the eigenpairs of the symmetric
+// h, eigenvalues floored at 1e-6 of the largest (a preconditioner: an
+// approximate inverse square root of a Hessian); nil when h has no
+// positive eigenvalue or cannot be decomposed.
+func invSqrt(h *mat.SymDense) *mat.Dense {
+	var es mat.EigenSym
+	if !es.Factorize(h, true) {
+		return nil
+	}
+	lam := es.Values(nil)
+	var vec mat.Dense
+	es.VectorsTo(&vec)
+	lmax := 0.0
+	for _, l := range lam {
+		lmax = math.Max(lmax, l)
+	}
+	if !(lmax > 0) {
+		return nil
+	}
+	n := len(lam)
+	pre := mat.NewDense(n, n, nil)
+	for k, l := range lam {
+		s := 1 / math.Sqrt(math.Max(l, 1e-6*lmax))
+		for i := 0; i < n; i++ {
+			pre.Set(i, k, vec.At(i, k)*s)
+		}
+	}
+	return pre
+}

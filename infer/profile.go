@@ -277,26 +277,5 @@ func innerPreconditioner(info *mat.SymDense, ob *objective, kinds []models.Param
 			h.SetSym(a, b, dw[i]*info.At(i, k)*dw[k]/ob.n)
 		}
 	}
-	var es mat.EigenSym
-	if !es.Factorize(h, true) {
-		return nil
-	}
-	lam := es.Values(nil)
-	var vec mat.Dense
-	es.VectorsTo(&vec)
-	lmax := 0.0
-	for _, l := range lam {
-		lmax = math.Max(lmax, l)
-	}
-	if !(lmax > 0) {
-		return nil
-	}
-	pre := mat.NewDense(m, m, nil)
-	for k, l := range lam {
-		sc := 1 / math.Sqrt(math.Max(l, 1e-6*lmax))
-		for i := 0; i < m; i++ {
-			pre.Set(i, k, vec.At(i, k)*sc)
-		}
-	}
-	return pre
+	return invSqrt(h)
 }
